@@ -519,6 +519,13 @@ def invert_talbot(geometry: str, biot: float, fourier: _Array, xi: _Array,
 # --------------------------------------------------------------------------- stage 5: one body
 
 
+def coefficient_bounds(geometry: str, biot: float) -> tuple[float, float]:
+    """Bounds (max |C_n|, max |E_n|) used by the truncation rule, from the first `MIN_TABLE`
+    coefficients (the largest magnitudes come first or stay level as n grows)."""
+    c, e = eigen.body_coefficients(geometry, biot, MIN_TABLE)
+    return float(np.abs(c).max()), float(np.abs(e).max())
+
+
 def body_response(geometry: str, biot: float, fourier: _Array, xi: _Array, atol: float,
                   max_terms: int) -> BodyResponse:
     """Response of one slab, cylinder or sphere at many times and positions.
@@ -561,19 +568,23 @@ def body_response(geometry: str, biot: float, fourier: _Array, xi: _Array, atol:
     short = np.zeros(nt, dtype=bool)
     live = fo > 0.0
     if biot > 0.0 and live.any():
-        c, e = eigen.body_coefficients(geometry, biot, MIN_TABLE)
-        c_bound = float(np.abs(c).max())
-        e_bound = float(np.abs(e).max())
+        c_bound, e_bound = coefficient_bounds(geometry, biot)
         needed = np.zeros(nt, dtype=int)
         needed[live] = truncation_terms(fo[live], atol, max(c_bound, e_bound))
         series = live & (needed <= max_terms)
         short = live & ~series
         if series.any():
-            pow2 = np.array([_table_length(n) for n in needed[series]])
+            # power-of-two counts: few distinct groups in `sum_series`, cached tables reused
+            pow2 = np.maximum(MIN_TABLE, 2 ** np.ceil(np.log2(needed[series]))).astype(int)
             k = np.minimum(pow2, max_terms)
             theta[series], mean[series] = sum_series(geometry, biot, fo[series], x, k)
-            theta_error[series] = tail_bound(fo[series], k, c_bound)
-            mean_error[series] = tail_bound(fo[series], k, e_bound)
+            # truncation (tail bound) plus rounding in the sum (4 eps sum |C_n| of the terms used)
+            c_all, e_all = eigen.body_coefficients(geometry, biot, _table_length(int(k.max())))
+            eps4 = 4.0 * np.finfo(float).eps
+            theta_error[series] = tail_bound(fo[series], k, c_bound) \
+                + eps4 * np.cumsum(np.abs(c_all))[k - 1]
+            mean_error[series] = tail_bound(fo[series], k, e_bound) \
+                + eps4 * np.cumsum(np.abs(e_all))[k - 1]
             terms[series] = k
         if short.any():
             theta[short], mean[short] = invert_talbot(geometry, biot, fo[short], x, TALBOT_NODES)
@@ -924,8 +935,8 @@ def _scope(name: str, times: _Array, temperatures: _Array,
     """Extremes over times (rows) and points (columns), with the per-time history."""
     hot = np.unravel_index(int(np.argmax(temperatures)), temperatures.shape)
     cold = np.unravel_index(int(np.argmin(temperatures)), temperatures.shape)
-    history = tuple((float(t), float(row.max()), float(row.min()))
-                    for t, row in zip(times, temperatures, strict=True))
+    history = tuple(zip(times.tolist(), temperatures.max(axis=1).tolist(),
+                        temperatures.min(axis=1).tolist(), strict=True))
     return Scope(
         name=name,
         hottest=Location(temperature=float(temperatures[hot]), description=labels[hot[1]],
@@ -1302,6 +1313,7 @@ def _solve_semi_infinite(problem: TransientProblem, setup: _Setup) -> TransientR
         temperature_step=(setup.ambient - ti) if kind != "flux" else 0.0,
         film_coefficient=setup.film_coefficient if kind == "convection" else 0.0,
         flux=float(problem.surface.value) if kind == "flux" else 0.0)  # type: ignore[arg-type]
+    energy = energy + 0.0  # no -0.0 at t = 0
     warnings: list[str] = []
 
     target_time = None
