@@ -106,6 +106,26 @@ def test_short_time_form_matches_image_series(fo: float) -> None:
                                rtol=0.0, atol=1e-10)
 
 
+@pytest.mark.parametrize("fo", [1e-6, 1e-4, 1e-2])
+def test_penetration_bound_covers_image_series(fo: float) -> None:
+    xi = np.linspace(0.01, 0.999, 60)
+    deficit = np.array([1.0 - ref.mp_image_sphere(fo, x) for x in xi])
+    # source: sphere image series in mpmath (reference_transient.mp_image_sphere); the sphere
+    # with a fixed surface temperature has the largest deficit of all bodies and Biot numbers
+    assert np.all(deficit <= tr.penetration_bound(np.array([fo]), xi)[0] + 1e-15)
+
+
+@pytest.mark.parametrize("biot", [0.5, 50.0, math.inf])
+@pytest.mark.parametrize("geometry", GEOMETRIES)
+def test_skipping_untouched_positions_changes_nothing(geometry: str, biot: float) -> None:
+    fo = np.geomspace(1e-8, 1e-2, 13)
+    xi = np.linspace(0.0, 1.0, 201)
+    skipped, _ = tr.invert_talbot(geometry, biot, fo, xi, skip_below=1e-12)
+    full, _ = tr.invert_talbot(geometry, biot, fo, xi, skip_below=0.0)
+    # common practice, no source: the skipped positions are at theta = 1 to within 1e-12
+    np.testing.assert_allclose(skipped, full, rtol=0.0, atol=1e-12)
+
+
 # --------------------------------------------------------------------------- finite volumes
 
 
