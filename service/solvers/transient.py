@@ -71,6 +71,8 @@ TALBOT_CHECK_NODES = 16
 MIN_TABLE = 16
 #: Budget: times x positions evaluated in one solve.
 MAX_POINTS = 2_000_000
+#: Budget: max_terms x positions (the largest matrix of eigenfunction values a solve may build).
+MAX_SERIES_WORK = 20_000_000
 #: Relative mismatch allowed between a given diffusivity and k / (rho c).
 DIFFUSIVITY_MISMATCH = 0.02
 #: Relative slack when checking that a position lies inside the body (rounding in inputs).
@@ -346,8 +348,9 @@ def spatial_modes(geometry: str, roots: _Array, xi: _Array) -> _Array:
 
 
 def _table_length(count: int) -> int:
-    """Power-of-two table length >= count, so repeated solves reuse cached tables."""
-    return max(MIN_TABLE, 1 << max(0, int(count) - 1).bit_length())
+    """Power-of-two table length >= count (so repeated solves reuse cached tables), capped at
+    the eigenvalue module's largest table."""
+    return min(max(MIN_TABLE, 1 << max(0, int(count) - 1).bit_length()), eigen.MAX_COUNT)
 
 
 def sum_series(geometry: str, biot: float, fourier: _Array, xi: _Array,
@@ -789,18 +792,22 @@ def _positions(problem: TransientProblem, factors: tuple[_Factor, ...]) -> _Arra
 
 def _position(p: float | tuple[float, ...], shape: str, factors: tuple[_Factor, ...],
               name: str) -> tuple[float, ...]:
-    values = (p,) if np.isscalar(p) else tuple(p)  # type: ignore[arg-type]
+    values: tuple[float, ...]
+    if isinstance(p, tuple | list | np.ndarray):
+        values = tuple(float(v) for v in p)
+    else:
+        values = (float(p),)
     d = max(1, len(factors))
     if len(values) != d:
         frame = {"bar": "(x, y)", "box": "(x, y, z)", "short_cylinder": "(r, z)"}.get(
             shape, "one number")
         raise IllPosedError(f"{name}: a {shape} position is {frame}, got {len(values)} "
                             "coordinates", field=name)
-    out = []
+    out: list[float] = []
     for value in values:
         if not math.isfinite(value):
             raise IllPosedError(f"{name} must be finite, got {value}", field=name)
-        out.append(float(value))
+        out.append(value)
     if shape == "semi_infinite" and out[0] < 0.0:
         raise IllPosedError(f"{name}: depth below the surface must be >= 0 m, got {out[0]}",
                             field=name)
@@ -837,6 +844,11 @@ def _setup(problem: TransientProblem) -> _Setup:
     if times.size * positions.shape[0] > MAX_POINTS:
         raise TooLargeError(f"times x positions = {times.size * positions.shape[0]} exceeds "
                             f"the budget of {MAX_POINTS} evaluations", field="positions")
+    if factors and problem.max_terms * (positions.shape[0] + 2 + len(factors)) > MAX_SERIES_WORK:
+        raise TooLargeError(f"max_terms x positions = {problem.max_terms} x "
+                            f"{positions.shape[0]} exceeds the budget of {MAX_SERIES_WORK}; "
+                            "lower max_terms (early times then use the short-time form)",
+                            field="max_terms")
     step = problem.initial_temperature - ambient if math.isfinite(ambient) else 0.0
     if problem.atol is not None:
         atol = _positive(problem.atol, "atol")

@@ -550,5 +550,10 @@ def test_input_rules(changes: dict, field: str, message: str) -> None:
 
 def test_too_many_points(monkeypatch: pytest.MonkeyPatch) -> None:
     monkeypatch.setattr(tr, "MAX_POINTS", 100)
-    with pytest.raises(TooLargeError, match="exceeds the budget"):
+    with pytest.raises(TooLargeError, match="exceeds the budget") as info:
         solve_transient(die_block(times=tuple(range(1, 60)), positions=(0.0, 0.05)))
+    assert info.value.field == "positions"
+    monkeypatch.undo()
+    with pytest.raises(TooLargeError, match="lower max_terms") as info:
+        solve_transient(die_block(max_terms=100_000, positions=tuple(np.linspace(0, 0.05, 300))))
+    assert info.value.field == "max_terms"
