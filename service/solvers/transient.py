@@ -75,6 +75,8 @@ MAX_POINTS = 2_000_000
 MAX_SERIES_WORK = 20_000_000
 #: Relative mismatch allowed between a given diffusivity and k / (rho c).
 DIFFUSIVITY_MISMATCH = 0.02
+#: Error estimate of closed forms, as a fraction of the temperature change (rounding only).
+_ROUNDING = 1e-14
 #: Relative slack when checking that a position lies inside the body (rounding in inputs).
 POSITION_SLACK = 1e-9
 
@@ -1064,7 +1066,8 @@ def solve_transient(problem: TransientProblem) -> TransientResult:
         Missing or inconsistent inputs (field named), a position outside the body, a flux
         surface on a finite body, an unreachable target (reason ``target-unreachable``).
     TooLargeError
-        More than `MAX_POINTS` time-position pairs.
+        More than `MAX_POINTS` time-position pairs, or max_terms x positions above
+        `MAX_SERIES_WORK`.
 
     Notes
     -----
@@ -1098,7 +1101,8 @@ def _status(error_k: float, atol: float, finite: bool, what: str) -> tuple[str, 
         return "non_finite", f"{what}: a NaN or infinity appeared in the results"
     if error_k > atol:
         return "max_terms", (f"{what}: error estimate {error_k:.3g} K exceeds atol {atol:.3g} K;"
-                             " raise max_terms or relax atol")
+                             " relax atol (rounding limits the series and the short-time form "
+                             "to about 1e-13 of the temperature step)")
     return "converged", f"{what}: error estimate {error_k:.3g} K within atol {atol:.3g} K"
 
 
@@ -1315,8 +1319,8 @@ def _solve_lumped(problem: TransientProblem, setup: _Setup) -> TransientResult:
     finite = bool(np.isfinite(temperatures).all())
     status = "converged" if finite else "non_finite"
     convergence = Convergence(status=status, message="lumped body: closed form exp(-t/tau)",
-                              error_estimate=0.0, atol=setup.atol, iterations=iterations,
-                              residual=residual)
+                              error_estimate=_ROUNDING * abs(step), atol=setup.atol,
+                              iterations=iterations, residual=residual)
     safety_times, safety_temps = _with_initial(times, temperatures[:, :1],
                                                problem.initial_temperature)
     body = _scope("body", safety_times, safety_temps, [()], ["lumped body"])
@@ -1383,7 +1387,9 @@ def _solve_semi_infinite(problem: TransientProblem, setup: _Setup) -> TransientR
         message = "semi-infinite solid: a NaN or infinity appeared in the results"
     if status == "converged" and not ok:
         status, message = "max_iterations", message + "; the target-time search did not converge"
-    convergence = Convergence(status=status, message=message, error_estimate=0.0,
+    # closed form: only rounding in erfc / erfcx (relative accuracy ~1e-15) remains
+    rounding = _ROUNDING * float(np.abs(rise).max(initial=0.0)) if finite else math.inf
+    convergence = Convergence(status=status, message=message, error_estimate=rounding,
                               atol=setup.atol, iterations=iterations, residual=residual)
 
     # safety: requested depths, the surface, and the far interior (still at Ti)
