@@ -23,4 +23,5 @@ class Budgets:
     max_sweep_cases: int = 1_000        # cases in one sweep
 
 
-CURRENT_BUDGETS: ContextVar[Budgets] = ContextVar("budgets", default=Budgets())
+DEFAULT_BUDGETS = Budgets()
+CURRENT_BUDGETS: ContextVar[Budgets] = ContextVar("budgets", default=DEFAULT_BUDGETS)  # noqa: B039 - frozen

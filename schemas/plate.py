@@ -5,8 +5,15 @@ from __future__ import annotations
 from typing import Any
 
 import numpy as np
-from marshmallow import Schema, ValidationError, fields, pre_dump, pre_load, validate, \
-    validates_schema
+from marshmallow import (
+    Schema,
+    ValidationError,
+    fields,
+    pre_dump,
+    pre_load,
+    validate,
+    validates_schema,
+)
 
 from schemas.budgets import CURRENT_BUDGETS
 from schemas.common import (
@@ -156,9 +163,7 @@ class PlateRequestSchema(SolveRequestSchema):
             raise ValidationError(errors)
 
     def make_problem(self, data: dict[str, Any]) -> PlateProblem:
-        edges = {name: Edge(**{k: (tuple(tuple(p) for p in v) if k == "profile" else v)
-                               for k, v in edge.items()})
-                 for name, edge in data["edges"].items()}
+        edges = {name: _edge(edge) for name, edge in data["edges"].items()}
         grid = data.get("grid")
         return PlateProblem(
             width=data["width"], height=data["height"], conductivity=data["conductivity"],
@@ -168,6 +173,13 @@ class PlateRequestSchema(SolveRequestSchema):
             atol=data["tolerance"], max_terms=CURRENT_BUDGETS.get().max_series_terms,
             limits=data["limits"],
         )
+
+
+def _edge(data: dict[str, Any]) -> Edge:
+    profile = data.get("profile")
+    return Edge(type=data["type"], value=data.get("value"),
+                profile=tuple((float(s), float(t)) for s, t in profile) if profile else None,
+                film_coefficient=data.get("film_coefficient"), ambient=data.get("ambient"))
 
 
 # --------------------------------------------------------------------------- response
@@ -238,4 +250,4 @@ class PlateResultsSchema(Schema):
 
 
 class PlateResponseSchema(SolveResponseSchema):
-    results = fields.Nested(PlateResultsSchema)
+    results = fields.Nested(PlateResultsSchema)  # type: ignore[assignment]

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from typing import Any
 
 from marshmallow import Schema, ValidationError, fields
@@ -13,7 +14,7 @@ class Polymorphic(fields.Field):
     The OpenAPI document shows it as `oneOf` the candidate schemas with a discriminator.
     """
 
-    def __init__(self, choices: dict[str, type[Schema]], **kwargs: Any) -> None:
+    def __init__(self, choices: Mapping[str, type[Schema]], **kwargs: Any) -> None:
         super().__init__(**kwargs)
         self.choices = choices
 
@@ -21,6 +22,6 @@ class Polymorphic(fields.Field):
         if not isinstance(value, dict):
             raise ValidationError("Must be an object with a 'type'.")
         kind = value.get("type")
-        if kind not in self.choices:
+        if not isinstance(kind, str) or kind not in self.choices:
             raise ValidationError({"type": [f"Must be one of: {', '.join(self.choices)}."]})
         return self.choices[kind]().load(value)

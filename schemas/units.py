@@ -25,7 +25,7 @@ with warnings.catch_warnings():
     warnings.simplefilter("ignore")
     import pint
 
-    UREG = pint.UnitRegistry(cache_folder=None)
+    UREG: pint.UnitRegistry = pint.UnitRegistry(cache_folder=None)
 
 ABSOLUTE_ZERO_C = -273.15
 

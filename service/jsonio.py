@@ -49,4 +49,4 @@ class OrjsonProvider(JSONProvider):
 
     def response(self, *args: Any, **kwargs: Any) -> Response:
         obj = self._prepare_response_obj(args, kwargs)
-        return self._app.response_class(dumps_bytes(obj), mimetype=self.mimetype)
+        return Response(dumps_bytes(obj), mimetype=self.mimetype)

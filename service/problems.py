@@ -104,7 +104,7 @@ def problem_response(type_: str, detail: str, *, status: int | None = None,
     request_id = getattr(g, "request_id", None)
     if request_id:
         body["request_id"] = request_id
-    response = current_app.json.response(body)
+    response: Response = current_app.json.response(body)  # type: ignore[assignment]
     response.status_code = body["status"]
     response.mimetype = "application/problem+json"
     for key, value in (headers or {}).items():

@@ -62,7 +62,8 @@ def read_json() -> Any:
     try:
         return loads(body)
     except orjson.JSONDecodeError as exc:
-        raise ProblemError("/problems/malformed-json", f"Request body is not valid JSON: {exc}.") from exc
+        raise ProblemError("/problems/malformed-json",
+                           f"Request body is not valid JSON: {exc}.") from exc
 
 
 @functools.lru_cache(maxsize=64)
@@ -118,8 +119,7 @@ def run_solve(family: Family, payload: Any) -> dict[str, Any]:
 
 def solve_endpoint(kind: str, path: str, request_schema: type[Schema],
                    response_schema: type[Schema], *, summary: str,
-                   cautions: tuple[str, ...] = ()) -> Callable[[Callable[[Any], Any]],
-                                                               Callable[[], Response]]:
+                   cautions: tuple[str, ...] = ()) -> Callable[[Callable[[Any], Any]], Any]:
     """Decorate `view(problem) -> result` into a Flask view answering the solve envelope."""
 
     def decorate(view: Callable[[Any], Any]) -> Callable[[], Response]:
@@ -128,7 +128,8 @@ def solve_endpoint(kind: str, path: str, request_schema: type[Schema],
 
         @functools.wraps(view)
         def endpoint() -> Response:
-            return current_app.json.response(run_solve(family, read_json()))
+            return current_app.json.response(  # type: ignore[return-value]
+                run_solve(family, read_json()))
 
         return endpoint
 

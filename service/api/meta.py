@@ -68,17 +68,17 @@ class EigenvaluesResponseSchema(Schema):
 
 
 @bp.get("/healthz")
-def healthz() -> Response:
+def healthz() -> Any:
     return current_app.json.response({"status": "ok"})
 
 
 @bp.get("/readyz")
-def readyz() -> Response:
+def readyz() -> Any:
     return current_app.json.response({"status": "ready"})
 
 
 @bp.get("/v1/eigenvalues")
-def eigenvalues() -> Response:
+def eigenvalues() -> Any:
     query = EigenvaluesQuerySchema().load(request.args.to_dict())
     return current_app.json.response(EigenvaluesResponseSchema().dump(eigen_table(**query)))
 
@@ -98,12 +98,12 @@ def eigen_table(geometry: str, biot: float, start_biot: float, count: int) -> di
 
 
 @bp.get("/v1/openapi.json")
-def openapi_document() -> Response:
+def openapi_document() -> Any:
     return current_app.json.response(current_app.extensions["conduction"]["openapi"]())
 
 
 @bp.get("/v1/docs")
-def docs() -> Response:
+def docs() -> Any:
     page = current_app.extensions["conduction"]["docs"]()
     return Response(page, mimetype="text/html")
 

@@ -1,9 +1,13 @@
 # TEMPORARY STUB for framework testing; replaced by the real solver from the plate branch.
 from __future__ import annotations
+
 from dataclasses import dataclass, field
+
 import numpy as np
+
 from service.solvers.convergence import Convergence
-from service.solvers.safety import Limits, Location, Scope, SafetyReport, check_limits
+from service.solvers.safety import Limits, Location, SafetyReport, Scope, check_limits
+
 
 @dataclass(frozen=True)
 class Edge:
