@@ -12,6 +12,7 @@ from typing import Any
 from flask import Flask, Response, g, request
 
 from service.config import budgets_from, load_config
+from service.cors import install_cors
 from service.jsonio import OrjsonProvider
 from service.problems import register_error_handlers
 
@@ -41,6 +42,7 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
         "docs": functools.cache(lambda: meta.render_docs(spec())),
     }
     register_error_handlers(app)
+    install_cors(app, settings["CORS_ORIGINS"])
 
     @app.before_request
     def _start() -> None:

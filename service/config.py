@@ -18,6 +18,7 @@ ENV_PREFIX = "CONDUCTION_"
 DEFAULTS: dict[str, Any] = {
     "MAX_BODY_BYTES": 2_000_000,   # request body limit (413 beyond it)
     "LOG_LEVEL": "INFO",
+    "CORS_ORIGINS": "",            # comma-separated allowed origins for browsers; "*" for any
     **{f.name.upper(): f.default for f in fields(Budgets)},
 }
 
