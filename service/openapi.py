@@ -127,10 +127,10 @@ def build_spec() -> dict[str, Any]:
             "summary": family.summary,
             "operationId": f"solve_{kind}",
             "requestBody": {"required": True, "content": {
-                "application/json": {"schema": family.request_schema}}},
+                "application/json": {"schema": type(family.request_schema)}}},
             "responses": {
                 "200": {"description": "Solved", "content": {
-                    "application/json": {"schema": family.response_schema}}},
+                    "application/json": {"schema": type(family.response_schema)}}},
                 **_problem_responses(400, 413, 415, 422),
             },
         }})

@@ -135,7 +135,7 @@ def sweep() -> Response:
                 _check_outputs(result, request["outputs"])
             outputs = [_pick(result, path) for path in request["outputs"]]
         rows.append([*values, *outputs])
-    request_schema, response_schema = family.request_schema(), family.response_schema()
+    request_schema, response_schema = family.request_schema, family.response_schema
     columns = [{"name": v["path"], "unit": _input_unit(request_schema, v["path"]),
                 "role": "varied"} for v in request["vary"]]
     columns += [{"name": path, "unit": unit_of(response_schema, path, units), "role": "output"}

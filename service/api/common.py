@@ -43,8 +43,8 @@ class Family:
 
     kind: str
     path: str
-    request_schema: type[Schema]
-    response_schema: type[Schema]
+    request_schema: Schema  # instances, built once: building a schema costs more than a solve
+    response_schema: Schema
     solve: Callable[[Any], Any]
     cautions: tuple[str, ...]
     summary: str
@@ -127,6 +127,9 @@ def selected_text(body: dict[str, Any]) -> str:
                            errors={"select": [str(exc)]}) from exc
 
 
+CONVERGENCE_SCHEMA = ConvergenceSchema()
+
+
 @functools.lru_cache(maxsize=64)
 def _kinds(schema_cls: type[Schema]) -> tuple[str, ...]:
     return tuple(quantity_kinds(schema_cls()))
@@ -147,13 +150,13 @@ def run_solve(family: Family, payload: Any) -> dict[str, Any]:
     """Validate, solve and envelope one problem; raises on every failure (used by batch too)."""
     CURRENT_BUDGETS.set(current_app.extensions["conduction"]["budgets"])
     started = time.perf_counter()
-    solve_request: SolveRequest = family.request_schema().load(payload)
+    solve_request: SolveRequest = family.request_schema.load(payload)
     result = family.solve(solve_request.problem)
     units = solve_request.output_units
     warnings = list(result.warnings)
     convergence = result.convergence
     if not convergence.converged:
-        diagnostics = dump_with_units(ConvergenceSchema(), convergence, units)
+        diagnostics = dump_with_units(CONVERGENCE_SCHEMA, convergence, units)
         if not solve_request.accept_unconverged:
             raise ProblemError("/problems/not-converged",
                                f"{convergence.message} Set accept_unconverged to true to receive "
@@ -165,7 +168,7 @@ def run_solve(family: Family, payload: Any) -> dict[str, Any]:
     envelope = {
         "kind": family.kind,
         "method": result.method,
-        "units": units_object(family.response_schema, units),
+        "units": units_object(type(family.response_schema), units),
         "results": result,
         "convergence": convergence,
         "safety": result.safety,
@@ -175,7 +178,7 @@ def run_solve(family: Family, payload: Any) -> dict[str, Any]:
                  "elapsed_ms": (time.perf_counter() - started) * 1e3,
                  "request_id": getattr(g, "request_id", "")},
     }
-    return dump_with_units(family.response_schema(), envelope, units)
+    return dump_with_units(family.response_schema, envelope, units)
 
 
 def answer(family: Family) -> Response:
@@ -190,7 +193,7 @@ def answer(family: Family) -> Response:
         return Response(selected_text(body), mimetype="text/plain")
     if fmt == "csv":
         units = body["units"]
-        rows = flatten(family.response_schema(), body, units)
+        rows = flatten(family.response_schema, body, units)
         text = write_csv(["quantity", "value", "unit"], rows, csv_separator())
         return Response(text, mimetype="text/csv")
     if fmt == "png":
@@ -209,8 +212,8 @@ def solve_endpoint(kind: str, path: str, request_schema: type[Schema],
     (JSON, CSV, PNG where `picture` is given, or one selected value as text)."""
 
     def decorate(view: Callable[[Any], Any]) -> Callable[[], Response]:
-        family = Family(kind, path, request_schema, response_schema, view, cautions, summary,
-                        picture, picture_payload)
+        family = Family(kind, path, request_schema(), response_schema(), view, cautions,
+                        summary, picture, picture_payload)
         FAMILIES[kind] = family
 
         @functools.wraps(view)
