@@ -1,0 +1,34 @@
+from __future__ import annotations
+
+import copy
+from typing import Any
+
+import pytest
+
+from service.app import create_app
+
+PLATE_PAYLOAD: dict[str, Any] = {
+    # a cast-iron inspection cover: hot bottom, cooled right side (demo scenario, invented)
+    "width": 0.6, "height": 1.0, "conductivity": 52, "generation": 0,
+    "edges": {"bottom": {"type": "temperature", "value": 100},
+              "left": {"type": "insulated"},
+              "right": {"type": "convection", "film_coefficient": 750, "ambient": 0},
+              "top": {"type": "flux", "value": -200}},
+    "points": [[0.6, 0.2], [0.3, 0.5]], "grid": {"nx": 7, "ny": 11},
+    "method": "auto", "limits": {"max_temperature": 90},
+}
+
+
+@pytest.fixture(scope="session")
+def app():
+    return create_app({"TESTING": True})
+
+
+@pytest.fixture
+def client(app):
+    return app.test_client()
+
+
+@pytest.fixture
+def plate_payload() -> dict[str, Any]:
+    return copy.deepcopy(PLATE_PAYLOAD)
