@@ -804,22 +804,27 @@ def _position(p: float | tuple[float, ...], shape: str, factors: tuple[_Factor, 
         frame = {"bar": "(x, y)", "box": "(x, y, z)", "short_cylinder": "(r, z)"}.get(
             shape, "one number")
         raise IllPosedError(f"{name}: a {shape} position is {frame}, got {len(values)} "
-                            "coordinates", field=name)
+                            "coordinates", field=name,
+                            reason="validation-failed")
     out: list[float] = []
     for value in values:
         if not math.isfinite(value):
-            raise IllPosedError(f"{name} must be finite, got {value}", field=name)
+            raise IllPosedError(f"{name} must be finite, got {value}", field=name,
+                            reason="validation-failed")
         out.append(value)
     if shape == "semi_infinite" and out[0] < 0.0:
         raise IllPosedError(f"{name}: depth below the surface must be >= 0 m, got {out[0]}",
-                            field=name)
+                            field=name,
+                            reason="validation-failed")
     for value, f in zip(out, factors, strict=False):
         if f.geometry != "slab" and value < 0.0:
-            raise IllPosedError(f"{name}: radius {value} m must be >= 0", field=name)
+            raise IllPosedError(f"{name}: radius {value} m must be >= 0", field=name,
+                            reason="validation-failed")
         if abs(value) > f.length * (1.0 + POSITION_SLACK):
             raise IllPosedError(
                 f"{name}: {f.direction} = {value} m lies outside the body ({f.name} = "
-                f"{f.length} m, positions are measured from the centre)", field=name)
+                f"{f.length} m, positions are measured from the centre)", field=name,
+                            reason="validation-failed")
     return tuple(out)
 
 
