@@ -641,7 +641,7 @@ def shape_integrals(geometry: str, inner: float, position: float | np.ndarray, a
     plane s = u/area, w = u^2/2; cylinder s = ln(r/inner)/(2 pi L),
     w = (r^2 - inner^2)/4 - inner^2 ln(r/inner)/2; sphere s = u/(4 pi inner r),
     w = u^2 (3 inner + u)/(6 r). The cylinder w loses digits to cancellation when u << inner, so
-    its Taylor series sum_{n>=2} (-1)^n x^n/(2n) (x = u/inner) is used for x < 0.01.
+    its Taylor series x^2/2 + sum_{n>=3} (-1)^n x^n/(2n) (x = u/inner) is used for x < 0.01.
     With inner = 0 (solid core) s is infinite and only w is used.
     """
     u = position - inner
@@ -653,9 +653,9 @@ def shape_integrals(geometry: str, inner: float, position: float | np.ndarray, a
             return _INF + 0.0 * u, 0.25 * u * u, v
         x = u / inner
         s = np.log1p(x) / (2.0 * math.pi * length)
-        series = 0.0 * x
-        power = x * x
-        for n in range(2, 13):
+        series = 0.5 * x * x
+        power = x * x * x
+        for n in range(3, 14):
             series = series + (1.0 if n % 2 == 0 else -1.0) * power / (2.0 * n)
             power = power * x
         closed = 0.25 * x * (2.0 + x) - 0.5 * np.log1p(x)
