@@ -121,7 +121,7 @@ CRITICAL_RADIUS_CASE = ReferenceCase(
     rtol={"critical_radius": 1e-9},
 )
 
-FIN_CASES = (
+FIN_CASES = tuple(
     ReferenceCase(
         id=f"long-rod-{name}",
         source="Incropera et al. 6th ed., worked example on very long rods as infinite fins "
