@@ -27,6 +27,7 @@ References
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 from dataclasses import dataclass, replace
 
 import numpy as np
@@ -413,7 +414,7 @@ class LayersResult:
     notes, warnings : tuple of str
     convergence : Convergence
         `iterations` counts every function evaluation of the root finders; `residual` is the
-        final imbalance at the outside surface (unit in `message`).
+        final imbalance of the surface conditions expressed as a temperature, K.
     safety : SafetyReport
     method : str
         ``closed_form``: exact profiles in each layer.
@@ -916,8 +917,10 @@ def _linearised(sf: _Surface, temperature: float) -> _Surface:
 class StackState:
     """The solved state at both surfaces (whole-body heat flows, W, outward).
 
-    `residual` is the final imbalance of the outside condition: K for a fixed-temperature
-    outside, W (whole body) otherwise. `iterations` counts residual evaluations (0 = exact).
+    `residual` is the final imbalance of the outside condition as a temperature, K: the
+    mismatch of a fixed outside temperature, or an energy imbalance (W) divided by the film
+    conductance (W/K) of the surface that takes it up, or times the layers' resistance.
+    `iterations` counts residual evaluations (0 = exact).
     """
 
     inside_temperature: float
@@ -926,11 +929,26 @@ class StackState:
     outside_heat_flow: float
     iterations: int
     residual: float
-    residual_unit: str
     converged: bool
 
 
-def _residual_function(st: LayerStack, ins: _Surface, out: _Surface, nonlinear: bool):
+def _residual_kelvin(r: float, st: LayerStack, inside: _Surface, outside: _Surface,
+                     t_in: float, t_out: float, layer_resistance: float) -> float:
+    """Express a final residual (K or W, see `_residual_function`) as a temperature, K."""
+    if outside.kind == "temperature":
+        return abs(r)
+    if outside.kind == "film":
+        h = _linearised(outside, t_out).h if outside.nonlinear else outside.h
+        return abs(r) / (h * st.outer_area)
+    if inside.kind == "film" and st.inner_area > 0:
+        h = _linearised(inside, t_in).h if inside.nonlinear else inside.h
+        return abs(r) / (h * st.inner_area)
+    return abs(r) * layer_resistance
+
+
+def _residual_function(st: LayerStack, ins: _Surface, out: _Surface, nonlinear: bool
+                       ) -> tuple[Callable[[float], tuple[float, float]],
+                                  Callable[[float], float], int]:
     """r(p) for the single unknown p and the map p -> (inside temperature, inside heat flow).
 
     p is the inside heat flow when the inside temperature is fixed (r decreases with p), else
@@ -988,7 +1006,8 @@ def _reference_temperatures(ins: _Surface, out: _Surface) -> tuple[float, float]
     return float(a), float(b)  # type: ignore[arg-type]
 
 
-def _affine_root(residual, p0: float, step: float) -> tuple[float, int]:
+def _affine_root(residual: Callable[[float], float], p0: float, step: float
+                 ) -> tuple[float, int]:
     """Root of an affine r(p) from two evaluations plus one secant refinement."""
     r0, r1 = residual(p0), residual(p0 + step)
     slope = (r1 - r0) / step
@@ -1001,7 +1020,8 @@ def _affine_root(residual, p0: float, step: float) -> tuple[float, int]:
     return p, 4
 
 
-def _bracket(residual, p0: float, step: float, direction: int, limit: int = 400
+def _bracket(residual: Callable[[float], float], p0: float, step: float, direction: int,
+             limit: int = 400
              ) -> tuple[float, float, float, float, int]:
     """Expand from p0 (doubling steps) until r changes sign, then pull infinite ends in by
     bisection. Returns (a, r(a), b, r(b), evaluations) with finite r of opposite signs."""
@@ -1071,11 +1091,16 @@ def solve_stack(st: LayerStack, inside: _Surface, outside: _Surface, atol: float
     # Sensitivity of the outside temperature to p (linearised), to turn atol into a tolerance
     # on p: temperatures through the body change linearly between the inside surface (0 or 1 K
     # per unit of p) and the outside surface, so the outside bounds the error.
-    t_a, _, _ = march(st, *state(p_lin), False)
-    t_b, _, _ = march(st, *state(p_lin + 1.0), False)
+    t_a = march(st, *state(p_lin), nonlinear=False)[0]
+    t_b = march(st, *state(p_lin + 1.0), nonlinear=False)[0]
     sens = abs(t_b - t_a)
+    layer_sens = sens if direction < 0 and math.isfinite(sens) else 0.0
     if direction < 0:
+        # p is the heat flow from a fixed inside temperature: an error dQ shifts temperatures
+        # by dQ times the resistance downstream, outside film included.
         sens = sens if sens > 0 and math.isfinite(sens) else 1.0
+        if lin_out.kind == "film" and lin_out.h > 0:
+            sens += 1.0 / (lin_out.h * st.outer_area)
         xtol = atol / (4.0 * sens)
         step = 0.1 * span / sens
     else:
@@ -1083,13 +1108,14 @@ def solve_stack(st: LayerStack, inside: _Surface, outside: _Surface, atol: float
         xtol = atol / (4.0 * sens)
         step = 0.05 * span
     state, residual, direction = _residual_function(st, inside, outside, True)
-    unit = "K" if outside.kind == "temperature" else "W"
     if not nonlinear:
         p = p_lin
         r = residual(p)
         t_in, q_in = state(p)
         t_out, q_out, _ = march(st, t_in, q_in)
-        return StackState(t_in, q_in, t_out, q_out, 0, abs(r), unit, True)
+        return StackState(t_in, q_in, t_out, q_out, 0,
+                          _residual_kelvin(r, st, inside, outside, t_in, t_out, layer_sens),
+                          True)
 
     a, ra, b, rb, more = _bracket(residual, p_lin, step, direction)
     evals += more
@@ -1104,7 +1130,9 @@ def solve_stack(st: LayerStack, inside: _Surface, outside: _Surface, atol: float
     t_in, q_in = state(p)
     t_out, q_out, _ = march(st, t_in, q_in)
     r = residual(p)
-    return StackState(t_in, q_in, t_out, q_out, evals, abs(r), unit, converged)
+    return StackState(t_in, q_in, t_out, q_out, evals,
+                      _residual_kelvin(r, st, inside, outside, t_in, t_out, layer_sens),
+                      converged)
 
 
 # ------------------------------------------------------------------------------------------------
@@ -1482,7 +1510,7 @@ def solve_layers(problem: LayersProblem) -> LayersResult:
     layer_results = []
     for i, face in enumerate(faces):
         (t_hot, x_hot), (t_cold, x_cold) = _layer_extremes(st, i, face)
-        r_layer = resistances[layer_element[i]]
+        element = resistances[layer_element[i]]
         layer_results.append(LayerResult(
             index=i, name=names[i], inner_position=st.positions[i],
             outer_position=st.positions[i + 1],
@@ -1490,8 +1518,8 @@ def solve_layers(problem: LayersProblem) -> LayersResult:
             outer_temperature=face.t_outer, hottest_temperature=t_hot, hottest_position=x_hot,
             coldest_temperature=t_cold, coldest_position=x_cold,
             mean_conductivity=face.k_mean, heat_flow_inner=face.q_inner / basis,
-            heat_flow_outer=face.q_outer / basis, resistance=r_layer.resistance,
-            share=r_layer.share))
+            heat_flow_outer=face.q_outer / basis, resistance=element.resistance,
+            share=element.share))
     interfaces = tuple(
         InterfaceResult(index=i, position=st.positions[i + 1],
                         temperature_inner_side=faces[i].t_outer,
@@ -1567,8 +1595,8 @@ def solve_layers(problem: LayersProblem) -> LayersResult:
     finite = all(math.isfinite(x) for x in (state.inside_temperature, state.outside_temperature,
                                               state.inside_heat_flow, state.outside_heat_flow))
     finite = finite and bool(np.all(np.isfinite(profile.temperatures)))
-    residual = state.residual / (basis if state.residual_unit == "W" else 1.0)
-    res_unit = {"K": "K", "W": "W/m" if basis != 1.0 else "W"}[state.residual_unit]
+    residual = state.residual
+    res_unit = "K (surface energy imbalance as a temperature)"
     if not finite:
         status, message = "non_finite", "a non-finite temperature or heat flow appeared"
     elif not converged:

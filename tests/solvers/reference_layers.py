@@ -28,8 +28,9 @@ class ReferenceCase:
 LAYER_CASES = (
     ReferenceCase(
         id="boiler-house-wall",
-        source="Cengel, Heat and Mass Transfer, worked example 'heat loss through a wall' (from memory): 3 m x 5 m wall, "
-               "0.3 m thick, k = 0.9 W/(m K), faces at 16 and 2 degC -> 630 W",
+        source="Cengel, Heat and Mass Transfer, worked example 'heat loss through a wall' "
+               "(from memory): 3 m x 5 m wall, 0.3 m thick, k = 0.9 W/(m K), faces at 16 and "
+               "2 degC -> 630 W",
         inputs=dict(geometry="plane", area=15.0,
                     layers=[dict(thickness=0.3, conductivity=0.9, name="brick")],
                     inside=dict(type="temperature", value=16.0),
@@ -39,9 +40,9 @@ LAYER_CASES = (
     ),
     ReferenceCase(
         id="control-room-single-pane",
-        source="Cengel, Heat and Mass Transfer, worked example 'heat loss through a single-pane window' (from memory): 0.8 m x 1.5 m glass "
-               "8 mm, k = 0.78, room 20 degC h = 10, outdoors -10 degC h = 40 -> 266 W, inner "
-               "surface -2.2 degC",
+        source="Cengel, Heat and Mass Transfer, worked example 'heat loss through a "
+               "single-pane window' (from memory): 0.8 m x 1.5 m glass 8 mm, k = 0.78, room "
+               "20 degC h = 10, outdoors -10 degC h = 40 -> 266 W, inner surface -2.2 degC",
         inputs=dict(geometry="plane", area=1.2,
                     layers=[dict(thickness=0.008, conductivity=0.78, name="glass")],
                     inside=dict(type="convection", film_coefficient=10.0, ambient=20.0),
@@ -51,9 +52,9 @@ LAYER_CASES = (
     ),
     ReferenceCase(
         id="control-room-double-pane",
-        source="Cengel, Heat and Mass Transfer, worked example 'heat loss through double-pane windows' (from memory): two 4 mm glass panes "
-               "(k = 0.78) around 10 mm of still air (k = 0.026), same films -> 69.2 W, inner "
-               "surface 14.2 degC",
+        source="Cengel, Heat and Mass Transfer, worked example 'heat loss through "
+               "double-pane windows' (from memory): two 4 mm glass panes (k = 0.78) around "
+               "10 mm of still air (k = 0.026), same films -> 69.2 W, inner surface 14.2 degC",
         inputs=dict(geometry="plane", area=1.2,
                     layers=[dict(thickness=0.004, conductivity=0.78, name="pane 1"),
                             dict(thickness=0.010, conductivity=0.026, name="air gap"),
@@ -66,9 +67,9 @@ LAYER_CASES = (
     ReferenceCase(
         id="steam-main-glass-wool",
         source="Cengel, Heat and Mass Transfer, worked example 'heat loss through an "
-               "insulated steam pipe' (from memory): cast iron pipe k = 80, D 5/5.5 cm, 3 cm glass wool "
-               "k = 0.05, steam 320 degC h = 60, air 5 degC h = 18 -> 121 W/m; drops 0.02 K "
-               "across the pipe and 284 K across the insulation",
+               "insulated steam pipe' (from memory): cast iron pipe k = 80, D 5/5.5 cm, "
+               "3 cm glass wool k = 0.05, steam 320 degC h = 60, air 5 degC h = 18 -> "
+               "121 W/m; drops 0.02 K across the pipe and 284 K across the insulation",
         inputs=dict(geometry="cylinder", inner_radius=0.025,
                     layers=[dict(thickness=0.0025, conductivity=80.0, name="pipe"),
                             dict(thickness=0.03, conductivity=0.05, name="glass wool")],

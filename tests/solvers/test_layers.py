@@ -196,26 +196,27 @@ def test_linear_conductivity_plane_wall_kirchhoff():
                                k0 * (1 + b * 0.5 * (t1 + t2)), rtol=1e-12, atol=0)
 
 
-def test_shape_integrals_against_quadrature():
+@pytest.mark.parametrize("geometry,r_a,r_b", [("plane", 0.0, 0.3), ("cylinder", 0.05, 0.12),
+                                               ("cylinder", 1.0, 1.0 + 1e-4),
+                                               ("sphere", 0.2, 0.9)])
+def test_shape_integrals_against_quadrature(geometry, r_a, r_b):
     # s = int dr/A, w = int (V(r) - V(r_a))/A dr against scipy.integrate.quad (independent).
     from scipy.integrate import quad
-    for geometry, r_a, r_b in (("plane", 0.0, 0.3), ("cylinder", 0.05, 0.12),
-                               ("cylinder", 1.0, 1.0 + 1e-4), ("sphere", 0.2, 0.9)):
-        area, length = 2.0, 3.0
+    area, length = 2.0, 3.0
 
-        def a(r):
-            return {"plane": area, "cylinder": 2 * math.pi * length * r,
-                    "sphere": 4 * math.pi * r * r}[geometry]
+    def a(r):
+        return {"plane": area, "cylinder": 2 * math.pi * length * r,
+                "sphere": 4 * math.pi * r * r}[geometry]
 
-        def v(r):
-            return {"plane": area * r, "cylinder": math.pi * length * r * r,
-                    "sphere": 4 / 3 * math.pi * r**3}[geometry]
-        s, w, vol = shape_integrals(geometry, r_a, r_b, area, length)
-        np.testing.assert_allclose(s, quad(lambda r: 1 / a(r), r_a, r_b, epsabs=0,
-                                           epsrel=1e-13)[0], rtol=1e-11, atol=0)
-        np.testing.assert_allclose(w, quad(lambda r: (v(r) - v(r_a)) / a(r), r_a, r_b,
-                                           epsabs=0, epsrel=1e-13)[0], rtol=1e-9, atol=0)
-        np.testing.assert_allclose(vol, v(r_b) - v(r_a), rtol=1e-9, atol=0)
+    def v(r):
+        return {"plane": area * r, "cylinder": math.pi * length * r * r,
+                "sphere": 4 / 3 * math.pi * r**3}[geometry]
+    s, w, vol = shape_integrals(geometry, r_a, r_b, area, length)
+    np.testing.assert_allclose(s, quad(lambda r: 1 / a(r), r_a, r_b, epsabs=0,
+                                       epsrel=1e-13)[0], rtol=1e-11, atol=0)
+    np.testing.assert_allclose(w, quad(lambda r: (v(r) - v(r_a)) / a(r), r_a, r_b,
+                                       epsabs=0, epsrel=1e-13)[0], rtol=1e-9, atol=0)
+    np.testing.assert_allclose(vol, v(r_b) - v(r_a), rtol=1e-9, atol=0)
 
 
 def test_temperature_change_inverts_kirchhoff():
@@ -335,6 +336,16 @@ def test_against_solve_bvp(name):
     np.testing.assert_allclose(res.surfaces[0].temperature, t_in, rtol=0, atol=1e-6)
     np.testing.assert_allclose(res.surfaces[1].temperature, t_out, rtol=0, atol=1e-6)
     np.testing.assert_allclose(res.heat_flow_total, q_out, rtol=1e-6, atol=0)
+
+
+@pytest.mark.parametrize("name", list(BVP_CASES) + ["deep-soil"])
+def test_reported_residual_within_atol(name):
+    inputs = BVP_CASES.get(name) or dict(PIPE, layers=[dict(thickness=100.0, conductivity=1.2,
+                                                            name="soil")])
+    res = solve_layers(make_problem(inputs))
+    # The residual (surface imbalance as a temperature, K) honours the tolerance asked.
+    assert res.convergence.converged
+    assert res.convergence.residual <= res.convergence.atol
 
 
 # ------------------------------------------------------------------------------------------------
