@@ -147,11 +147,13 @@ class DesignTarget:
     surface_temperature : float or None
         Outside surface temperature, degC (personnel protection).
     heat_flow_per_length : float or None
-        Heat flow leaving the outside surface, W/m (cylinders).
+        Heat flow through the outside surface, W/m (cylinders).
     heat_flux : float or None
-        Heat flux leaving the outside surface, W/m^2.
+        Heat flux through the outside surface, W/m^2.
     heat_flow : float or None
-        Heat flow leaving the outside surface of the whole body, W.
+        Heat flow through the outside surface of the whole body, W.
+
+    Heat-flow targets are magnitudes (> 0): a loss for hot lines, a gain for cold ones.
     """
 
     surface_temperature: float | None = None
@@ -413,8 +415,10 @@ class LayersResult:
         Cylinders and spheres with a convective outside surface.
     notes, warnings : tuple of str
     convergence : Convergence
-        `iterations` counts every function evaluation of the root finders; `residual` is the
-        final imbalance of the surface conditions expressed as a temperature, K.
+        `iterations`: residual evaluations of the final state's root finder (0 when the
+        problem is linear and solved exactly) plus, with `solve_for`, the number of trial
+        thicknesses (each a full state solve); `residual` is the final imbalance of the surface
+        conditions expressed as a temperature, K; `atol` the temperature tolerance used.
     safety : SafetyReport
     method : str
         ``closed_form``: exact profiles in each layer.
@@ -582,6 +586,9 @@ def validate_problem(problem: LayersProblem) -> None:
         path = f"solve_for.target.{quantity}"
         if not _finite(sf.target.value):
             raise IllPosedError(f"{path} must be finite", field=path)
+        if quantity != "surface_temperature" and sf.target.value <= 0:
+            raise IllPosedError(f"{path} is a magnitude (heat loss or gain) and must be > 0",
+                                field=path)
         if quantity == "heat_flow_per_length" and problem.geometry != "cylinder":
             raise IllPosedError("heat_flow_per_length targets apply to cylinders; use heat_flux "
                                 "or heat_flow", field=path)
@@ -1202,7 +1209,9 @@ def solve_thickness(problem: LayersProblem, atol: float
         state = solve_stack(st, ins, out, atol, problem.max_iterations)
         counter["states"] += 1
         counter["converged"] = counter["converged"] and state.converged
-        return _target_value(quantity, st, state)
+        value = _target_value(quantity, st, state)
+        # Heat-flow targets are magnitudes (loss of a hot line or gain of a cold one).
+        return value if quantity == "surface_temperature" else abs(value)
 
     def f(t: float) -> float:
         return value(t) - target
@@ -1214,8 +1223,10 @@ def solve_thickness(problem: LayersProblem, atol: float
     peak: tuple[float, float] | None = None
     if quantity in ("heat_flow", "heat_flow_per_length") and problem.geometry != "plane":
         r_in = (problem.inner_radius or 0.0) + sum(base[:j])
-        delta = 1e-6 * max(r_in, 1e-3)
-        if abs(value(delta)) > abs(v0):
+        # A 1 % step: large enough that the rise below the critical radius stands clear of the
+        # state solver's tolerance, small enough not to step over a peak that matters.
+        delta = max(0.01 * r_in, 1e-5)
+        if abs(value(delta)) > abs(v0) * (1.0 + 1e-7):
             # Below the critical radius: locate the thickness of maximum heat flow.
             hi = delta
             v_hi = value(hi)
@@ -1262,8 +1273,8 @@ def solve_thickness(problem: LayersProblem, atol: float
         r_peak = (problem.inner_radius or 0.0) + sum(base[:j]) + t_peak
         note = (f"layer '{name}' starts below the critical radius: {label} rises with thickness "
                 f"up to {v_peak:.6g} {unit} at a thickness of {t_peak:.4g} m (outer radius "
-                f"{r_peak:.4g} m) and falls beyond it; the thickness given is on the falling "
-                "branch")
+                f"{r_peak:.4g} m) and falls beyond it; the thickness reported is on the "
+                "falling branch")
         if (v0 - target > 0) != (v_peak - target > 0) and v0 != target:
             alt = optimize.brentq(f, 0.0, t_peak, xtol=1e-12, rtol=1e-10,
                                   maxiter=problem.max_iterations)

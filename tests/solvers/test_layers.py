@@ -494,6 +494,16 @@ def test_solve_for_heat_loss_round_trip(quantity, target, geometry):
     np.testing.assert_allclose(res.layers[1].thickness, res.solved.thickness, rtol=1e-12, atol=0)
 
 
+def test_solve_for_cold_line_heat_gain():
+    # A chilled-brine line gains heat: heat-flow targets are magnitudes.
+    inputs = dict(PIPE, inside=dict(type="convection", film_coefficient=800.0, ambient=-30.0),
+                  outside=dict(type="air", ambient=30.0, emissivity=0.9))
+    res = solve_layers(make_problem(inputs, solve_for=SolveFor(
+        1, DesignTarget(heat_flow_per_length=15.0))))
+    np.testing.assert_allclose(res.heat_flow, -15.0, rtol=1e-7, atol=0)
+    assert res.solved.achieved > 0 and res.surfaces[1].temperature < 30.0
+
+
 def test_solve_for_unreachable_surface_temperature():
     problem = make_problem(PIPE, solve_for=SolveFor(1, DesignTarget(surface_temperature=15.0)))
     with pytest.raises(IllPosedError) as err:
@@ -547,6 +557,25 @@ def test_solve_for_below_critical_radius():
             0, DesignTarget(heat_flow_per_length=1.1 * peak))))
     assert err.value.reason == "target-unreachable"
     assert "never exceeds" in err.value.message
+
+
+def test_critical_radius_detection_with_air_surfaces():
+    # Same physics with the nonlinear 'air' surface: a thin wire rises then falls, a large
+    # pipe only falls (no spurious critical-radius note). Round trips are common practice.
+    wire = dict(geometry="cylinder", inner_radius=0.001,
+                layers=[dict(thickness=0.001, conductivity=0.2, name="sheath")],
+                inside=dict(type="temperature", value=80.0),
+                outside=dict(type="air", ambient=20.0, emissivity=0.9))
+    res = solve_layers(make_problem(wire, solve_for=SolveFor(
+        0, DesignTarget(heat_flow_per_length=15.0))))
+    np.testing.assert_allclose(res.heat_flow, 15.0, rtol=1e-7, atol=0)
+    assert res.solved.alternative_thickness < res.solved.thickness
+    thin = solve_layers(make_problem(wire, layers=[dict(
+        thickness=res.solved.alternative_thickness, conductivity=0.2, name="sheath")]))
+    np.testing.assert_allclose(thin.heat_flow, 15.0, rtol=1e-6, atol=0)
+    pipe = solve_layers(make_problem(PIPE, outside=wire["outside"], solve_for=SolveFor(
+        1, DesignTarget(heat_flow_per_length=80.0))))
+    assert pipe.solved.note is None and pipe.solved.alternative_thickness is None
 
 
 # ------------------------------------------------------------------------------------------------
@@ -604,6 +633,8 @@ def test_forced_non_convergence_is_reported():
           solve_for=SolveFor(1, DesignTarget(surface_temperature=40.0))),
      "solve_for.target.surface_temperature", "fixed"),
     (dict(profile_points=1), "profile_points", ">= 2"),
+    (dict(solve_for=SolveFor(1, DesignTarget(heat_flux=-5.0))), "solve_for.target.heat_flux",
+     "magnitude"),
 ])
 def test_input_rules(overrides, field, words):
     with pytest.raises(IllPosedError) as err:
