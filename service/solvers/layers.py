@@ -399,6 +399,9 @@ class LayersResult:
         Heat flow leaving the outside surface per basis (positive = heat lost outward).
     heat_flow_total : float
         The same for the whole body, W (cylinder: times `length`).
+    outside_heat_flux : float
+        The same per square metre of outside surface, W/m^2 (for a plane wall, the heat flow
+        per m^2 of wall).
     surfaces : tuple of SurfaceResult
         (inside, outside).
     layers : tuple of LayerResult
@@ -428,6 +431,7 @@ class LayersResult:
     basis: str
     heat_flow: float
     heat_flow_total: float
+    outside_heat_flux: float
     surfaces: tuple[SurfaceResult, SurfaceResult]
     layers: tuple[LayerResult, ...]
     interfaces: tuple[InterfaceResult, ...]
@@ -1493,7 +1497,8 @@ def solve_layers(problem: LayersProblem) -> LayersResult:
     elements: list[tuple[str, str, float | None]] = []
     layer_element: list[int] = []
     if h_in is not None and st.inner_area > 0:
-        elements.append(("inside film", "film", basis / (h_in * st.inner_area)))
+        elements.append(("inside film", "film",
+                         basis / (h_in * st.inner_area) if h_in > 0 else None))
     solid_core = problem.geometry != "plane" and st.positions[0] == 0.0
     rc = problem.contact_resistances or (0.0,) * (st.n - 1)
     for i, face in enumerate(faces):
@@ -1503,7 +1508,8 @@ def solve_layers(problem: LayersProblem) -> LayersResult:
         if i < st.n - 1 and rc[i] > 0:
             elements.append((f"contact {i}-{i + 1}", "contact", basis * st.contact[i]))
     if h_out is not None:
-        elements.append(("outside film", "film", basis / (h_out * st.outer_area)))
+        elements.append(("outside film", "film",
+                         basis / (h_out * st.outer_area) if h_out > 0 else None))
     known = [r for _, _, r in elements if r is not None]
     total = sum(known) if len(known) == len(elements) else None
     resistances = tuple(ResistanceElement(n_, k_, r_, (r_ / total) if (total and r_ is not None)
@@ -1627,7 +1633,7 @@ def solve_layers(problem: LayersProblem) -> LayersResult:
     q_out = state.outside_heat_flow
     return LayersResult(
         geometry=problem.geometry, basis="W/m" if problem.geometry == "cylinder" else "W",
-        heat_flow=q_out / basis, heat_flow_total=q_out,
+        heat_flow=q_out / basis, heat_flow_total=q_out, outside_heat_flux=q_out / st.outer_area,
         surfaces=(inside_res, outside_res), layers=tuple(layer_results),
         interfaces=interfaces, resistances=resistances, total_resistance=total,
         overall_coefficient=overall, profile=profile, solved=solved, critical_radius=critical,

@@ -486,8 +486,10 @@ def test_solve_for_heat_loss_round_trip(quantity, target, geometry):
         inputs.pop("inner_radius")
     problem = make_problem(inputs, solve_for=SolveFor(1, DesignTarget(**{quantity: target})))
     res = solve_layers(problem)
+    np.testing.assert_allclose(res.outside_heat_flux, -res.surfaces[1].heat_flux, rtol=1e-14,
+                               atol=0)
     got = {"heat_flow_per_length": res.heat_flow,
-           "heat_flux": -res.surfaces[1].heat_flux,
+           "heat_flux": res.outside_heat_flux,
            "heat_flow": res.heat_flow_total}[quantity]
     np.testing.assert_allclose(got, target, rtol=1e-7, atol=0)
     np.testing.assert_allclose(res.solved.achieved, target, rtol=1e-7, atol=0)
