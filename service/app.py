@@ -29,7 +29,7 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
     app.config["MAX_CONTENT_LENGTH"] = int(settings["MAX_BODY_BYTES"])
     logging.getLogger("service").setLevel(settings["LOG_LEVEL"])
 
-    from service.api import blueprints, meta
+    from service.api import blueprints, meta, verification
     from service.openapi import build_spec
 
     for blueprint in blueprints():
@@ -40,6 +40,7 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
         "budgets": budgets_from(settings),
         "openapi": spec,
         "docs": functools.cache(lambda: meta.render_docs(spec())),
+        "verification": functools.cache(verification.report),
     }
     register_error_handlers(app)
     install_cors(app, settings["CORS_ORIGINS"])
