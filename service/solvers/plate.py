@@ -660,18 +660,25 @@ class EdgeData:
     values: _Array | None
     poly: _Array
 
+    def _profile(self) -> tuple[_Array, _Array] | None:
+        if self.breaks is None or self.values is None:
+            return None
+        return self.breaks, self.values
+
     def __call__(self, sigma: _Array) -> _Array:
         out = np.polynomial.polynomial.polyval(sigma, self.poly)
-        if self.breaks is not None:
-            out = out + np.interp(sigma, self.breaks, self.values)
+        prof = self._profile()
+        if prof is not None:
+            out = out + np.interp(sigma, prof[0], prof[1])
         return out
 
     def derivative(self, sigma: float, side: int) -> float:
         """df/dsigma at sigma from the right (side 0) or left (side 1)."""
         d = float(np.polynomial.polynomial.polyval(sigma, np.polynomial.polynomial.polyder(
             self.poly)))
-        if self.breaks is not None:
-            slopes = np.diff(self.values) / np.diff(self.breaks)
+        prof = self._profile()
+        if prof is not None:
+            slopes = np.diff(prof[1]) / np.diff(prof[0])
             d += float(slopes[0] if side == 0 else slopes[-1])
         return d
 
@@ -679,9 +686,10 @@ class EdgeData:
         """(TV(f), TV(f')) bounds over [0, 1] (triangle inequality over the two parts)."""
         tv0 = _poly_variation(self.poly)
         tv1 = _poly_variation(np.polynomial.polynomial.polyder(self.poly))
-        if self.breaks is not None:
-            tv0 += float(np.sum(np.abs(np.diff(self.values))))
-            slopes = np.diff(self.values) / np.diff(self.breaks)
+        prof = self._profile()
+        if prof is not None:
+            tv0 += float(np.sum(np.abs(np.diff(prof[1]))))
+            slopes = np.diff(prof[1]) / np.diff(prof[0])
             tv1 += float(np.sum(np.abs(np.diff(slopes))))
         return tv0, tv1
 
@@ -863,14 +871,16 @@ def edge_coefficients(sub: SubProblem, mu: _Array, phase: _Array, norm: _Array) 
     data = sub.data
     proj = np.tensordot(data.poly, _moments(np.array([0.0]), np.array([1.0]), mu, phase, 4)[:, 0],
                         axes=1)
-    if data.breaks is not None:
-        br, va = data.breaks, data.values
+    prof = data._profile()
+    if prof is not None:
+        br, va = prof
         # linear pieces f = p0 + p1 sigma on each segment, summed in blocks to bound memory
         p1 = np.diff(va) / np.diff(br)
         p0 = va[:-1] - p1 * br[:-1]
         step = max(1, _BLOCK // max(mu.size, 1))
+        lo, hi = br[:-1], br[1:]
         for i in range(0, p0.size, step):
-            m = _moments(br[i:i + step], br[i + 1:i + 1 + step], mu, phase, 1)
+            m = _moments(lo[i:i + step], hi[i:i + step], mu, phase, 1)
             proj = proj + p0[i:i + step] @ m[0] + p1[i:i + step] @ m[1]
     return proj / norm
 

@@ -95,7 +95,8 @@ def _profile_coefficients(width: float, profile: tuple[tuple[float, float], ...]
             q = (t[i + 1] - t[i]) / (s[i + 1] - s[i])
             p0 = t[i] - q * s[i]
 
-            def anti(v: mpmath.mpf) -> mpmath.mpf:
+            def anti(v: mpmath.mpf, p0: mpmath.mpf = p0, q: mpmath.mpf = q,
+                     a: mpmath.mpf = a) -> mpmath.mpf:
                 return -(p0 + q * v) * mpmath.cos(a * v) / a + q * mpmath.sin(a * v) / a**2
 
             total += anti(s[i + 1]) - anti(s[i])

@@ -128,8 +128,8 @@ def test_parabola_with_generation() -> None:
     r = solve_plate(p)
     y = np.array([0.01, 0.03])
     # exact 1D solution, common practice: linear part plus g y (H - y) / (2 k)
-    np.testing.assert_allclose(r.point_temperatures, 40.0 - 30.0 * y / h + g * y * (h - y) / (2 * k),
-                               rtol=1e-12, atol=1e-9)
+    exact = 40.0 - 30.0 * y / h + g * y * (h - y) / (2 * k)
+    np.testing.assert_allclose(r.point_temperatures, exact, rtol=1e-12, atol=1e-9)
     np.testing.assert_allclose(r.energy_balance.net, 0.0, rtol=0.0, atol=1e-9 * g * 0.2 * h)
 
 
@@ -288,8 +288,8 @@ def test_fine_profiles_reproduce_the_harmonic_x2_minus_y2() -> None:
     w, h = 0.5, 0.4
     sx, sy = np.linspace(0.0, w, 201), np.linspace(0.0, h, 201)
     p = PlateProblem(w, h, 1.0, bottom=INSULATED, left=INSULATED,
-                     top=Edge("temperature", profile=tuple(zip(sx, sx**2 - h**2))),
-                     right=Edge("temperature", profile=tuple(zip(sy, w**2 - sy**2))),
+                     top=Edge("temperature", profile=tuple(zip(sx, sx**2 - h**2, strict=True))),
+                     right=Edge("temperature", profile=tuple(zip(sy, w**2 - sy**2, strict=True))),
                      atol=1e-8)
     xs, ys = np.meshgrid(np.linspace(0, w, 6), np.linspace(0, h, 5))
     bound = (w / 200) ** 2 / 4
@@ -344,7 +344,8 @@ def test_grid_equals_points() -> None:
     p = dataclasses.replace(MIXED, grid=(7, 5))
     r = solve_plate(p)
     xs, ys = np.meshgrid(r.grid_x, r.grid_y)
-    pts = solve_plate(dataclasses.replace(MIXED, points=tuple(zip(xs.ravel(), ys.ravel()))))
+    points = tuple(zip(xs.ravel(), ys.ravel(), strict=True))
+    pts = solve_plate(dataclasses.replace(MIXED, points=points))
     atol = r.convergence.atol
     # the same series summed two ways (common practice, no source)
     np.testing.assert_allclose(r.grid_temperature.ravel(), pts.point_temperatures, rtol=0.0,
@@ -486,11 +487,11 @@ def test_edge_coefficients_against_scipy_quad() -> None:
         breaks = [] if sub.data.breaks is None else list(sub.data.breaks)
         scale = sub.data.max_abs()
         for n in (0, 1, 5, 40):
-            def f(s, n=n):
-                return sub.data(np.array(s)) * np.sin(mu[n] * s + ph[n])
+            def f(s, data=sub.data, m=mu[n], p=ph[n]):
+                return data(np.array(s)) * np.sin(m * s + p)
             num = integrate.quad(f, 0.0, 1.0, points=breaks[1:-1] or None, limit=400,
                                  epsabs=1e-12 * scale, epsrel=1e-11)[0]
-            den = integrate.quad(lambda s, n=n: np.sin(mu[n] * s + ph[n]) ** 2, 0.0, 1.0,
+            den = integrate.quad(lambda s, m=mu[n], p=ph[n]: np.sin(m * s + p) ** 2, 0.0, 1.0,
                                  limit=400, epsabs=1e-13, epsrel=1e-11)[0]
             # independent implementation: scipy.integrate.quad of <f, X_n> / <X_n, X_n>
             np.testing.assert_allclose(coef[n], num / den, rtol=1e-9,
