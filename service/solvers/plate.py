@@ -641,7 +641,10 @@ def corner_polynomial(problem: PlateProblem, cond: dict[str, _EdgeCondition],
     z = np.zeros(len(weight))
     if rows_req:
         z, *_ = np.linalg.lstsq(np.array(rows_req) * weight, np.array(rhs_req), rcond=None)
-    return CornerPolynomial(weight * z, scale)
+    coef = weight * z
+    # drop rounding-level coefficients (they only cost evaluation time)
+    coef[np.abs(coef) <= 1e-14 * np.abs(coef).max(initial=0.0)] = 0.0
+    return CornerPolynomial(coef, scale)
 
 
 # =========================================================================== stage 3: edge data
@@ -674,8 +677,8 @@ class EdgeData:
 
     def derivative(self, sigma: float, side: int) -> float:
         """df/dsigma at sigma from the right (side 0) or left (side 1)."""
-        d = float(np.polynomial.polynomial.polyval(sigma, np.polynomial.polynomial.polyder(
-            self.poly)))
+        c = [float(v) for v in self.poly]
+        d = _horner([j * c[j] for j in range(1, len(c))], sigma)
         prof = self._profile()
         if prof is not None:
             slopes = np.diff(prof[1]) / np.diff(prof[0])
@@ -693,26 +696,32 @@ class EdgeData:
             tv1 += float(np.sum(np.abs(np.diff(slopes))))
         return tv0, tv1
 
-    def max_abs(self) -> float:
-        s = np.linspace(0.0, 1.0, 65)
-        if self.breaks is not None:
-            s = np.union1d(s, self.breaks)
-        return float(np.max(np.abs(self(s)))) + _poly_variation(self.poly) / 64.0
+
+def _horner(c: list[float], x: float) -> float:
+    out = 0.0
+    for a in reversed(c):
+        out = out * x + a
+    return out
 
 
 def _poly_variation(c: _Array) -> float:
-    """Total variation of a polynomial on [0, 1]."""
-    c = np.trim_zeros(np.asarray(c, float), "b")
-    if c.size <= 1:
+    """Total variation of a polynomial on [0, 1]: |differences| between its values at 0, 1
+    and the real roots of its derivative inside (0, 1)."""
+    coef = [float(v) for v in c]
+    while coef and coef[-1] == 0.0:
+        coef.pop()
+    if len(coef) <= 1:
         return 0.0
-    d = np.polynomial.polynomial.polyder(c)
+    d = [j * coef[j] for j in range(1, len(coef))]
     crit = [0.0, 1.0]
-    if np.any(d != 0.0) and np.trim_zeros(d, "b").size > 1:
-        r = np.polynomial.polynomial.polyroots(np.trim_zeros(d, "b"))
-        r = r[np.abs(r.imag) < 1e-12].real
-        crit += [float(v) for v in r if 0.0 < v < 1.0]
-    vals = np.polynomial.polynomial.polyval(np.sort(crit), c)
-    return float(np.sum(np.abs(np.diff(vals))))
+    if len(d) == 2:
+        crit.append(-d[0] / d[1])
+    elif len(d) > 2:
+        r = np.roots(d[::-1])
+        crit += [float(v.real) for v in r if abs(v.imag) < 1e-12]
+    pts = sorted(v for v in crit if 0.0 <= v <= 1.0)
+    vals = [_horner(coef, v) for v in pts]
+    return float(sum(abs(b - a) for a, b in zip(vals, vals[1:], strict=False)))
 
 
 def edge_data(problem: PlateProblem, cond: dict[str, _EdgeCondition], base: _Base,
@@ -866,6 +875,42 @@ def _moments(a: _Array, b: _Array, mu: _Array, phase: _Array, degree: int) -> _A
     return out
 
 
+def _profile_projection(breaks: _Array, values: _Array, mu: _Array, phase: _Array) -> _Array:
+    """int_0^1 f(sigma) sin(mu sigma + phi) dsigma for piecewise-linear continuous f, exactly.
+
+    Integrating by parts twice (f'' is a sum of kinks): with theta = mu sigma + phi, slopes s_k
+    and kinks ds_k at interior breakpoints sigma_k,
+    <f, X> = (f(0) cos theta_0 - f(1) cos theta_1) / mu
+             + (s_last sin theta_1 - s_0 sin theta_0 - sum_k ds_k sin theta_k) / mu^2,
+    one sine per kink and mode; its rounding error is about eps TV(f') / mu^2. Modes with
+    mu < 1, where the terms would cancel, use the segment moments of `_moments` instead.
+    """
+    slopes = np.diff(values) / np.diff(breaks)
+    out = np.zeros(mu.size)
+    small = mu < 1.0
+    if np.any(small):
+        p0 = values[:-1] - slopes * breaks[:-1]
+        idx = np.nonzero(small)[0]
+        step = max(1, _BLOCK // idx.size)
+        for i in range(0, p0.size, step):
+            m = _moments(breaks[:-1][i:i + step], breaks[1:][i:i + step], mu[idx], phase[idx], 1)
+            out[idx] += p0[i:i + step] @ m[0] + slopes[i:i + step] @ m[1]
+    big = np.nonzero(~small)[0]
+    if big.size:
+        m, ph = mu[big], phase[big]
+        th0, th1 = ph, m + ph
+        acc = (values[0] * np.cos(th0) - values[-1] * np.cos(th1)) / m
+        kinks = np.diff(slopes)
+        inner = np.zeros(big.size)
+        step = max(1, _BLOCK // big.size)
+        for i in range(0, kinks.size, step):
+            sk = breaks[1:-1][i:i + step]
+            inner += kinks[i:i + step] @ np.sin(sk[:, None] * m[None, :] + ph[None, :])
+        acc += (slopes[-1] * np.sin(th1) - slopes[0] * np.sin(th0) - inner) / (m * m)
+        out[big] = acc
+    return out
+
+
 def edge_coefficients(sub: SubProblem, mu: _Array, phase: _Array, norm: _Array) -> _Array:
     """c_n = <f, X_n> / <X_n, X_n> with exact integrals of the polynomial and profile parts."""
     data = sub.data
@@ -873,15 +918,7 @@ def edge_coefficients(sub: SubProblem, mu: _Array, phase: _Array, norm: _Array) 
                         axes=1)
     prof = data._profile()
     if prof is not None:
-        br, va = prof
-        # linear pieces f = p0 + p1 sigma on each segment, summed in blocks to bound memory
-        p1 = np.diff(va) / np.diff(br)
-        p0 = va[:-1] - p1 * br[:-1]
-        step = max(1, _BLOCK // max(mu.size, 1))
-        lo, hi = br[:-1], br[1:]
-        for i in range(0, p0.size, step):
-            m = _moments(lo[i:i + step], hi[i:i + step], mu, phase, 1)
-            proj = proj + p0[i:i + step] @ m[0] + p1[i:i + step] @ m[1]
+        proj = proj + _profile_projection(prof[0], prof[1], mu, phase)
     return proj / norm
 
 
@@ -1152,9 +1189,9 @@ def _root_count(n: int, max_terms: int) -> int:
 class _Series:
     """One sub-problem with its modes computed on demand (instance cache, per solve)."""
 
-    def __init__(self, sub: SubProblem, max_terms: int) -> None:
+    def __init__(self, sub: SubProblem, consts: TailConstants, max_terms: int) -> None:
         self.sub = sub
-        self.consts = tail_constants(sub)
+        self.consts = consts
         self.max_terms = max_terms
         self._modes: Modes | None = None
 
@@ -1186,17 +1223,25 @@ class PlateSeries:
         self.corner = corner_polynomial(problem, cond, self.particular, self.plan)
         self.base = _Base(self.particular, self.corner)
         self.series: list[_Series] = []
+        #: bound on the series left out as negligible (K), added to every error bound
+        self.skipped = 0.0
         scale = self.atol * 1e-6
         for name in EDGE_NAMES:
             data = edge_data(problem, cond, self.base, name)
             sub = _sub_problem(problem, cond, name, data)
-            mag = data.max_abs()
+            consts = tail_constants(sub)
+            # skip series whose whole contribution is negligible: V1 >= max |data| bounds it
+            # for fixed-temperature data (maximum principle); flux and convection data are
+            # scaled by a conduction length (an estimate there, at 1e-6 atol)
+            mag = consts.v1
             if sub.kind == "N":
                 mag *= max(problem.width, problem.height) / problem.conductivity
             elif sub.kind == "R":
                 mag /= problem.conductivity / max(problem.width, problem.height) + sub.film
             if mag > scale:
-                self.series.append(_Series(sub, problem.max_terms))
+                self.series.append(_Series(sub, consts, problem.max_terms))
+            else:
+                self.skipped += mag
         self.budget = self.atol / max(1, len(self.series))
 
     # ------------------------------------------------------------------ evaluation
@@ -1252,7 +1297,7 @@ class PlateSeries:
                 temp = temp + sum_series(sub, modes, np.clip(s / sub.length, 0.0, 1.0), t, terms)
                 most = max(most, int(terms.max()))
         temp = np.where(on, exact, temp)
-        return temp, err, most
+        return temp, np.where(on, 0.0, err + self.skipped), most
 
     def terms_in_box(self, x0: float, x1: float, y0: float, y1: float) -> list[int]:
         """Per series, the most terms any point of the box [x0, x1] x [y0, y1] needs."""
@@ -1265,6 +1310,54 @@ class PlateSeries:
             out.append(int(choose_terms(ser.sub, ser.consts, t, self.budget,
                                         self.problem.max_terms)[0][0]))
         return out
+
+    def point_function(self, terms: list[int]) -> Callable[[_Array, _Array], _Array]:
+        """A fast evaluator T(x, y) (arrays) with fixed term counts (one per series).
+
+        Same sums as `temperature` with the per-mode constants precomputed, for the repeated
+        calls of a local search; fixed-temperature edges return their data.
+        """
+        w, h = self.problem.width, self.problem.height
+        parts = []
+        for ser, n in zip(self.series, terms, strict=True):
+            if n <= 0:
+                continue
+            sub = ser.sub
+            modes = ser.modes(n)
+            mu, ph, c = modes.mu[:n], modes.phase[:n], modes.coef[:n]
+            lam = mu / sub.length
+            a, b = _kind_ab(*sub.opposite, lam)
+            c0, s0 = 1.0 + np.exp(-2.0 * lam * sub.depth), -np.expm1(-2.0 * lam * sub.depth)
+            with np.errstate(divide="ignore", invalid="ignore"):
+                scale = c / _data_operator(sub, lam, a, b, c0, s0)
+            linear: tuple[float, float] | None = None
+            if mu[0] == 0.0:
+                y0, bop = _linear_mode(sub)
+                a0 = float(y0(np.array(0.0)))
+                linear = (c[0] * a0 / bop, c[0] * (float(y0(np.array(1.0))) - a0) / bop)
+                scale = scale.copy()
+                scale[0] = 0.0
+            parts.append((sub, mu, ph, lam, scale * a, scale * b, linear))
+
+        def temperature(x: _Array, y: _Array) -> _Array:
+            x = np.atleast_1d(np.asarray(x, float))
+            y = np.atleast_1d(np.asarray(y, float))
+            on, exact = self._fixed_edges(x, y)
+            total = self.base.value(x, y)
+            for sub, mu, ph, lam, ca, cb, linear in parts:
+                sv, tv = _to_local(sub.edge, x, y, w, h)
+                tv = np.maximum(tv, 0.0)[:, None]
+                u = sub.depth - tv
+                e_t = np.exp(-lam * tv)
+                ch = e_t + np.exp(-lam * (sub.depth + u))
+                sh = -e_t * np.expm1(-2.0 * lam * u)
+                xs = np.sin(mu * np.clip(sv / sub.length, 0.0, 1.0)[:, None] + ph)
+                total = total + np.sum(xs * (ca * ch + cb * sh), axis=1)
+                if linear is not None:
+                    total = total + linear[0] + linear[1] * u[:, 0]
+            return np.where(on, exact, total)
+
+        return temperature
 
     def grid(self, gx: _Array, gy: _Array) -> tuple[_Array, _Array, int]:
         """Temperatures (ny, nx), per-point error bounds and most terms on a tensor grid."""
@@ -1292,7 +1385,7 @@ class PlateSeries:
                 most = max(most, int(terms.max()))
             err = err + (bound[:, None] if f.along_x else bound[None, :])
         temp = np.where(on, exact, temp)
-        err = np.where(on, 0.0, err)
+        err = np.where(on, 0.0, err + self.skipped)
         return temp, err, most
 
     # ------------------------------------------------------------------ flows
@@ -1347,10 +1440,10 @@ class PlateSeries:
         """Sum one flow series in blocks of 256, 1024, 4096, ... terms.
 
         Stops when the partial sums over the block's last half vary by <= tol, or when the
-        differences of the partial sums S(N/16), S(N/4), S(N) shrink by a factor 16 +- 25 % (an
-        algebraic 1/N^2 tail, the usual case next to a corner) and the Richardson correction
-        (S(N) - S(N/4)) / 15 times the misfit of that factor (at least 1 %) is <= tol; then the
-        corrected value is returned. Otherwise sums max_terms terms.
+        differences of the partial sums S(N/64), S(N/16), S(N/4), S(N) shrink by a steady factor
+        r in [3, 20] (an algebraic tail ~ N^-p, the usual case next to a corner) and the
+        Richardson correction d / (r - 1) times the change of r (at least 1 %) is <= tol; then
+        the corrected value is returned. Otherwise sums max_terms terms.
         """
         max_terms = self.problem.max_terms
         count = min(256, max_terms)
@@ -1359,14 +1452,16 @@ class PlateSeries:
             spread = float(np.max(np.abs(part[count // 2:] - part[-1]), initial=0.0))
             if spread <= tol:
                 return float(part[-1])
-            if count >= 256:
-                d0 = part[count // 4 - 1] - part[count // 16 - 1]
-                d1 = part[-1] - part[count // 4 - 1]
-                ratio = d0 / d1 if d1 != 0.0 else 0.0
-                # error of the corrected sum ~ correction x relative misfit of the ratio
-                if 12.0 <= ratio <= 20.0 and abs(d1) / 15.0 * max(abs(ratio / 16.0 - 1.0),
-                                                                 1e-2) <= tol:
-                    return float(part[-1] + d1 / 15.0)  # Richardson, tail ~ 1/N^2
+            if count >= 1024:
+                # S(N/64), S(N/16), S(N/4), S(N): differences shrinking by a steady factor r
+                # mean an algebraic tail ~ N^-p, r = 4^p; its sum is d / (r - 1) (Richardson)
+                s = part[[count // 64 - 1, count // 16 - 1, count // 4 - 1, count - 1]]
+                d = np.diff(s)
+                if d[1] != 0.0 and d[2] != 0.0:
+                    r0, r1 = d[0] / d[1], d[1] / d[2]
+                    misfit = max(abs(r1 / r0 - 1.0), 1e-2)
+                    if 3.0 <= r1 <= 20.0 and abs(d[2] / (r1 - 1.0)) * misfit <= tol:
+                        return float(s[3] + d[2] / (r1 - 1.0))
             if count >= max_terms:
                 return float(part[-1])
             count = min(4 * count, max_terms)
@@ -1452,23 +1547,32 @@ def _refine(model: PlateSeries, x0: float, y0: float, sign: float, hx: float,
         lo_x = hi_x = x0
     if on_y:
         lo_y = hi_y = y0
-    terms = model.terms_in_box(lo_x, hi_x, lo_y, hi_y)
-
-    def temp(x: float, y: float) -> float:
-        return float(model.temperature(np.array([x]), np.array([y]), terms)[0][0])
+    temp = model.point_function(model.terms_in_box(lo_x, hi_x, lo_y, hi_y))
 
     if on_x or on_y:
         if on_y:
-            res = optimize.minimize_scalar(lambda v: -sign * temp(v, y0), bounds=(lo_x, hi_x),
-                                           method="bounded", options={"xatol": 1e-6 * w})
+            res = optimize.minimize_scalar(lambda v: -sign * float(temp(v, y0)[0]),
+                                           bounds=(lo_x, hi_x), method="bounded",
+                                           options={"xatol": 1e-4 * hx})
             xb, yb = float(res.x), y0
         else:
-            res = optimize.minimize_scalar(lambda v: -sign * temp(x0, v), bounds=(lo_y, hi_y),
-                                           method="bounded", options={"xatol": 1e-6 * h})
+            res = optimize.minimize_scalar(lambda v: -sign * float(temp(x0, v)[0]),
+                                           bounds=(lo_y, hi_y), method="bounded",
+                                           options={"xatol": 1e-4 * hy})
             xb, yb = x0, float(res.x)
     else:
-        res = optimize.minimize(lambda v: -sign * temp(float(v[0]), float(v[1])),
-                                np.array([x0, y0]), method="L-BFGS-B",
+        # value and forward-difference gradient from one vectorised call (three points),
+        # stepping inwards at the box's upper bounds
+        dx, dy = 1e-7 * max(w, h), 1e-7 * max(w, h)
+
+        def fun_grad(v: _Array) -> tuple[float, _Array]:
+            sx = dx if v[0] + dx <= hi_x else -dx
+            sy = dy if v[1] + dy <= hi_y else -dy
+            f = -sign * temp(np.array([v[0], v[0] + sx, v[0]]),
+                             np.array([v[1], v[1], v[1] + sy]))
+            return float(f[0]), np.array([(f[1] - f[0]) / sx, (f[2] - f[0]) / sy])
+
+        res = optimize.minimize(fun_grad, np.array([x0, y0]), jac=True, method="L-BFGS-B",
                                 bounds=[(lo_x, hi_x), (lo_y, hi_y)], options={"maxiter": 50})
         xb, yb = float(res.x[0]), float(res.x[1])
     found = model.temperature(np.array([x0, xb]), np.array([y0, yb]))[0]
@@ -1477,29 +1581,36 @@ def _refine(model: PlateSeries, x0: float, y0: float, sign: float, hx: float,
 
 
 def _extreme(model: PlateSeries, xs: _Array, ys: _Array, ts: _Array, sign: float,
-             hx: float, hy: float) -> Location:
+             hx: float, hy: float, with_data: bool = True) -> Location:
+    """Hottest (sign = +1) or coldest (-1) of the samples, refined locally, and compared with
+    the exact fixed-temperature data (`with_data`)."""
     p = model.problem
     i = int(np.argmax(sign * ts))
     best = (float(ts[i]), float(xs[i]), float(ys[i]))
     on_fixed, _ = model._fixed_edges(np.array([best[1]]), np.array([best[2]]))
     if not on_fixed[0]:
         best = _refine(model, best[1], best[2], sign, hx, hy)
-    for cand in _boundary_candidates(model):
-        if sign * cand[0] > sign * best[0]:
-            best = cand
+    if with_data:
+        for cand in _boundary_candidates(model):
+            if sign * cand[0] >= sign * best[0]:  # exact data wins ties
+                best = cand
     return Location(best[0], describe(best[1], best[2], p.width, p.height), (best[1], best[2]))
 
 
-def _edge_scope(model: PlateSeries, name: str, samples: int) -> Scope:
+def _edge_scope(model: PlateSeries, name: str, sx: _Array, sy: _Array, st: _Array) -> Scope:
+    """Extremes along one edge from the sample grid's row or column, refined along the edge."""
     p = model.problem
-    length = _lengths(name, p.width, p.height)[0]
-    s = np.linspace(0.0, length, samples)
-    x, y = _edge_point(name, s, p.width, p.height)
-    t, _, _ = model.temperature(x, y)
-    step = length / (samples - 1)
-    hx, hy = (step, 0.0) if _FRAMES[name].along_x else (0.0, step)
-    hot = _extreme(model, x, y, t, 1.0, hx, hy)
-    cold = _extreme(model, x, y, t, -1.0, hx, hy)
+    f = _FRAMES[name]
+    if f.along_x:
+        t = st[-1 if f.far else 0, :]
+        x, y = sx, np.full_like(sx, p.height if f.far else 0.0)
+        hx, hy = float(sx[1] - sx[0]), 0.0
+    else:
+        t = st[:, -1 if f.far else 0]
+        x, y = np.full_like(sy, p.width if f.far else 0.0), sy
+        hx, hy = 0.0, float(sy[1] - sy[0])
+    hot = _extreme(model, x, y, t, 1.0, hx, hy, with_data=False)
+    cold = _extreme(model, x, y, t, -1.0, hx, hy, with_data=False)
     return Scope(f"{name} edge", hot, cold)
 
 
@@ -1622,10 +1733,8 @@ def solve_plate(problem: PlateProblem) -> PlateResult:
 
     # safety
     body = Scope("body", hottest, coldest)
-    surfaces = [_edge_scope(model, n, max(EXTREMES_SAMPLES, int(p.grid[0] if p.grid and
-                                                               _FRAMES[n].along_x else
-                                                               p.grid[1] if p.grid else 0)))
-                for n in EDGE_NAMES if model.cond[n].kind == "R"]
+    surfaces = [_edge_scope(model, n, sx, sy, st) for n in EDGE_NAMES
+                if model.cond[n].kind == "R"]
     safety = check_limits(p.limits, body, surfaces)
 
     # convergence

@@ -478,15 +478,23 @@ def test_perpendicular_ratio_is_overflow_free_and_matches_sinh() -> None:
                                atol=1e-15)
 
 
-def test_edge_coefficients_against_scipy_quad() -> None:
-    model = PlateSeries(dataclasses.replace(MIXED, atol=1e-6))
+WAVY = tuple((float(s), 100.0 + 50.0 * np.sin(40.0 * s)) for s in np.linspace(0.0, 0.3, 120))
+
+
+@pytest.mark.parametrize("problem", [
+    MIXED,
+    PlateProblem(0.3, 0.2, 15.0, bottom=Edge("temperature", profile=WAVY), top=fixed(20.0),
+                 left=conv(10.0, 20.0), right=INSULATED),
+], ids=["mixed", "wavy-profile"])
+def test_edge_coefficients_against_scipy_quad(problem: PlateProblem) -> None:
+    model = PlateSeries(dataclasses.replace(problem, atol=1e-6))
     for ser in model.series:
         sub = ser.sub
-        mu, ph, norm = plate.edge_eigenvalues(sub, 64)
+        mu, ph, norm = plate.edge_eigenvalues(sub, 256)
         coef = plate.edge_coefficients(sub, mu, ph, norm)
         breaks = [] if sub.data.breaks is None else list(sub.data.breaks)
-        scale = sub.data.max_abs()
-        for n in (0, 1, 5, 40):
+        scale = float(np.abs(sub.data(np.linspace(0.0, 1.0, 201))).max())
+        for n in (0, 1, 5, 40, 200):
             def f(s, data=sub.data, m=mu[n], p=ph[n]):
                 return data(np.array(s)) * np.sin(m * s + p)
             num = integrate.quad(f, 0.0, 1.0, points=breaks[1:-1] or None, limit=400,
@@ -510,6 +518,26 @@ def test_tail_bound_bounds_the_actual_tail() -> None:
             head = plate.sum_series(sub, modes, sigma, t, np.full(3, n))
             bound = plate.tail_bound(sub, ser.consts, np.array([n]), t)[:, 0]
             assert np.all(np.abs(full - head) <= bound)
+
+
+@pytest.mark.parametrize("problem", [
+    PlateProblem(1.0, 1e-3, 50.0, bottom=fixed(100.0), top=fixed(0.0), left=conv(10.0, 20.0),
+                 right=conv(10.0, 20.0), grid=(21, 5)),
+    PlateProblem(1e-3, 1.0, 50.0, bottom=fixed(100.0), top=conv(5.0, 20.0), left=INSULATED,
+                 right=conv(30.0, 20.0), grid=(5, 21)),
+    PlateProblem(1e-6, 2e-6, 1.0, bottom=fixed(100.0), top=fixed(0.0),
+                 left=Edge("flux", value=1e6), right=conv(1e4, 20.0), grid=(11, 11)),
+    PlateProblem(1e3, 5e2, 1.0, bottom=fixed(100.0), top=fixed(0.0), left=Edge("flux", value=1.0),
+                 right=conv(1e-2, 20.0), generation=1e-6, grid=(11, 11)),
+    PlateProblem(0.3, 0.2, 15.0, bottom=conv(1000.0, 300.0), top=conv(10.0, 20.0),
+                 left=conv(50.0, 20.0), right=conv(5.0, 100.0), generation=1e4, grid=(11, 11)),
+], ids=["thin-strip", "tall-strip", "micro", "large", "all-convective"])
+def test_extreme_geometries_converge_and_balance(problem: PlateProblem) -> None:
+    r = solve_plate(problem)
+    assert r.convergence.status == "converged"
+    assert np.all(np.isfinite(r.grid_temperature))
+    # conservation of energy, common practice
+    np.testing.assert_allclose(r.energy_balance.relative_error, 0.0, rtol=0.0, atol=1e-8)
 
 
 def test_flows_do_not_depend_on_the_point_request() -> None:
