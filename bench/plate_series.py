@@ -59,7 +59,8 @@ def main() -> None:
             gx = np.linspace(0.0, problem.width, n)
             gy = np.linspace(0.0, problem.height, n)
 
-            def build_and_sum(p: PlateProblem = problem) -> None:
+            def build_and_sum(p: PlateProblem = problem, gx: np.ndarray = gx,
+                              gy: np.ndarray = gy) -> None:
                 PlateSeries(p).grid(gx, gy)
 
             def build_and_flows(p: PlateProblem = problem) -> None:

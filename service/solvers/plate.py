@@ -1547,16 +1547,19 @@ def _refine(model: PlateSeries, x0: float, y0: float, sign: float, hx: float,
         lo_x = hi_x = x0
     if on_y:
         lo_y = hi_y = y0
-    temp = model.point_function(model.terms_in_box(lo_x, hi_x, lo_y, hi_y))
+    evaluate = model.point_function(model.terms_in_box(lo_x, hi_x, lo_y, hi_y))
+
+    def temp(x: float, y: float) -> float:
+        return float(evaluate(np.array([x]), np.array([y]))[0])
 
     if on_x or on_y:
         if on_y:
-            res = optimize.minimize_scalar(lambda v: -sign * float(temp(v, y0)[0]),
+            res = optimize.minimize_scalar(lambda v: -sign * temp(v, y0),
                                            bounds=(lo_x, hi_x), method="bounded",
                                            options={"xatol": 1e-4 * hx})
             xb, yb = float(res.x), y0
         else:
-            res = optimize.minimize_scalar(lambda v: -sign * float(temp(x0, v)[0]),
+            res = optimize.minimize_scalar(lambda v: -sign * temp(x0, v),
                                            bounds=(lo_y, hi_y), method="bounded",
                                            options={"xatol": 1e-4 * hy})
             xb, yb = x0, float(res.x)
@@ -1568,8 +1571,8 @@ def _refine(model: PlateSeries, x0: float, y0: float, sign: float, hx: float,
         def fun_grad(v: _Array) -> tuple[float, _Array]:
             sx = dx if v[0] + dx <= hi_x else -dx
             sy = dy if v[1] + dy <= hi_y else -dy
-            f = -sign * temp(np.array([v[0], v[0] + sx, v[0]]),
-                             np.array([v[1], v[1], v[1] + sy]))
+            f = -sign * evaluate(np.array([v[0], v[0] + sx, v[0]]),
+                                 np.array([v[1], v[1], v[1] + sy]))
             return float(f[0]), np.array([(f[1] - f[0]) / sx, (f[2] - f[0]) / sy])
 
         res = optimize.minimize(fun_grad, np.array([x0, y0]), jac=True, method="L-BFGS-B",
