@@ -19,8 +19,9 @@ Stages (each a named function, testable alone):
 from __future__ import annotations
 
 import math
-from collections.abc import Callable
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
+from types import MappingProxyType
 
 import numpy as np
 from scipy import optimize
@@ -197,19 +198,19 @@ class _Frame:
     normal: tuple[float, float]  # outward unit normal
 
 
-_FRAMES = {
+_FRAMES: Mapping[str, _Frame] = MappingProxyType({
     "bottom": _Frame(True, False, "left", "right", "top", (0.0, -1.0)),
     "top": _Frame(True, True, "left", "right", "bottom", (0.0, 1.0)),
     "left": _Frame(False, False, "bottom", "top", "right", (-1.0, 0.0)),
     "right": _Frame(False, True, "bottom", "top", "left", (1.0, 0.0)),
-}
+})
 # corners as (horizontal edge, vertical edge): name, and which end of each edge it is (0 or 1)
-_CORNERS = {
+_CORNERS: Mapping[tuple[str, str], str] = MappingProxyType({
     ("bottom", "left"): "bottom-left",
     ("bottom", "right"): "bottom-right",
     ("top", "right"): "top-right",
     ("top", "left"): "top-left",
-}
+})
 
 
 def _lengths(name: str, width: float, height: float) -> tuple[float, float]:
@@ -238,11 +239,6 @@ def _edge_point(name: str, s: _Array, width: float, height: float) -> tuple[_Arr
 def _corner_end(edge: str, other: str) -> int:
     """0 if the corner with `other` is at s = 0 of `edge`, 1 if at s = L."""
     return 0 if _FRAMES[edge].start == other else 1
-
-
-def _corner_name(a: str, b: str) -> str:
-    key = (a, b) if a in ("bottom", "top") else (b, a)
-    return _CORNERS[key]
 
 
 # =========================================================================== edge kinds
@@ -786,7 +782,8 @@ class SubProblem:
     data: EdgeData
 
 
-_END_KIND = {"D": "fixed", "N": "insulated", "R": "convective"}
+_END_KIND: Mapping[str, str] = MappingProxyType(
+    {"D": "fixed", "N": "insulated", "R": "convective"})
 
 
 def _sub_problem(problem: PlateProblem, cond: dict[str, _EdgeCondition], name: str,
@@ -840,7 +837,12 @@ def edge_eigenvalues(sub: SubProblem, count: int) -> tuple[_Array, _Array, _Arra
     return mu, phase, norm
 
 
-_GL_X, _GL_W = np.polynomial.legendre.leggauss(12)
+_GL_X, _GL_W = np.polynomial.legendre.leggauss(12)  # read-only constants
+_GL_X.setflags(write=False)
+_GL_W.setflags(write=False)
+_GL6_X, _GL6_W = np.polynomial.legendre.leggauss(6)
+_GL6_X.setflags(write=False)
+_GL6_W.setflags(write=False)
 
 
 def _moments(a: _Array, b: _Array, mu: _Array, phase: _Array, degree: int) -> _Array:
@@ -1218,7 +1220,8 @@ class PlateSeries:
         self.cond = cond
         self.atol = problem.atol if problem.atol is not None else default_atol(problem)
         temps = [t for c in cond.values() if c.kind == "D" for t in c.profile_t]  # type: ignore
-        self.plan = plan_corners(cond, 1e-12 * max([1.0] + [abs(v) for v in temps]))
+        # corner temperatures equal to rounding are compatible; any real difference is a jump
+        self.plan = plan_corners(cond, 1e-9 * max([1.0] + [abs(v) for v in temps]))
         self.particular = particular_solution(problem, cond)
         self.corner = corner_polynomial(problem, cond, self.particular, self.plan)
         self.base = _Base(self.particular, self.corner)
@@ -1412,7 +1415,7 @@ class PlateSeries:
         w, h, k = p.width, p.height, p.conductivity
         tol = rtol * self.flow_scale() / max(1, len(self.series))
         out: dict[str, float | None] = {}
-        gl_x, gl_w = np.polynomial.legendre.leggauss(6)
+        gl_x, gl_w = _GL6_X, _GL6_W  # exact for the base's polynomials (degree <= 4)
         for name in EDGE_NAMES:
             c = self.cond[name]
             length = _lengths(name, w, h)[0]

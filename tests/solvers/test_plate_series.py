@@ -105,6 +105,15 @@ def test_one_hot_top_flow_against_mpmath_and_singular_corners_reported() -> None
     assert f"{-flows.top:.6g} W/m" in text
 
 
+def test_finite_flow_next_to_a_singular_corner_that_cannot_be_summed_is_null_with_warning() -> None:
+    # a jump at the bottom-left corner whichever edge carries it spoils a finite flow series
+    p = PlateProblem(0.3, 0.2, 15.0, bottom=fixed(100.0), right=fixed(100.0), left=fixed(0.0),
+                     top=Edge("temperature", profile=((0.0, 0.0), (0.3, 100.0))))
+    r = solve_plate(p)
+    assert r.edge_heat_flow.right is None and r.edge_heat_flow.top is not None
+    assert any(w.startswith("right edge: the heat flow is finite") for w in r.warnings)
+
+
 # --------------------------------------------------------------------------- 1D limits
 
 
