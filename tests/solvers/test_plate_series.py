@@ -85,6 +85,7 @@ def test_centre_of_square_exact_by_symmetry_with_default_tolerance() -> None:
     result = solve_plate(dataclasses.replace(ref.KILN, points=((0.2, 0.2),)))
     atol = 1e-6 * (400.0 - 30.0)
     assert result.convergence.status == "converged"
+    # the contract's default tolerance: 1e-6 of the largest temperature difference (API.md)
     np.testing.assert_allclose(result.convergence.atol, atol, rtol=1e-12, atol=0.0)
     # exact by symmetry and superposition: (T1 + 3 T0) / 4 (common practice, no source)
     np.testing.assert_allclose(result.point_temperatures, [(400.0 + 3 * 30.0) / 4], rtol=0.0,
@@ -139,6 +140,7 @@ def test_parabola_with_generation() -> None:
     # exact 1D solution, common practice: linear part plus g y (H - y) / (2 k)
     exact = 40.0 - 30.0 * y / h + g * y * (h - y) / (2 * k)
     np.testing.assert_allclose(r.point_temperatures, exact, rtol=1e-12, atol=1e-9)
+    # conservation of energy, common practice: flows + generation = 0
     np.testing.assert_allclose(r.energy_balance.net, 0.0, rtol=0.0, atol=1e-9 * g * 0.2 * h)
 
 
@@ -320,7 +322,8 @@ def test_points_on_fixed_edges_return_the_boundary_data_exactly() -> None:
     p = dataclasses.replace(ref.PROFILED, points=((0.0, 0.0), (0.03, 0.0), (0.3, 0.0),
                                                   (0.6, 0.2), (0.25, 0.5)))
     r = solve_plate(p)
-    # boundary data (the profile, clamped), and the mean at the singular corner (0, 0)
+    # the boundary data themselves (the profile, clamped; the mean of 50 and 0 at the singular
+    # corner (0, 0)), common practice, no source
     np.testing.assert_allclose(r.point_temperatures,
                                [25.0, 50.0, np.interp(0.3, [0.06, 0.24, 0.42], [50, 120, 80]),
                                 0.0, 0.0], rtol=0.0, atol=0.0)
@@ -397,8 +400,9 @@ def test_biot_sweep_on_the_side_edges_is_finite_monotone_with_right_limits() -> 
     assert np.all(np.diff(temps[:, 0]) < 0.0)
     # h -> 0: insulated sides, linear 180 -> 60 (exact 1D solution, common practice)
     np.testing.assert_allclose(temps[0], [120.0, 120.0], rtol=0.0, atol=2e-2)
-    # h -> inf: sides at 20 degC (independent implementation: mpmath series with Bi = 1e5 ...
-    # compared with the fixed-side plate solved by superposing two one-hot series)
+    # h -> inf: sides at 20 degC, i.e. a hot-bottom plus a hot-top one-hot plate minus 20 degC
+    # (superposition); at mid-height the hot-top series equals the hot-bottom one (independent
+    # implementation: mpmath series)
     cold_sides = (ref.one_hot_series(0.15, 0.1, 0.3, 0.2, 180.0, 20.0)
                   + ref.one_hot_series(0.15, 0.1, 0.3, 0.2, 60.0, 20.0) - 20.0)
     np.testing.assert_allclose(temps[-1, 0], cold_sides, rtol=1e-3, atol=0.0)
@@ -437,8 +441,10 @@ def test_interior_hottest_point_with_generation() -> None:
     r = solve_plate(p)
     centre = ref.generation_series(0.04, 0.025, 0.08, 0.05, 16.0, 2.0e6)  # mpmath
     assert r.hottest.description == "interior"
+    # the centre, by symmetry (common practice, no source)
     np.testing.assert_allclose(r.hottest.position, (0.04, 0.025), rtol=0.0, atol=1e-5)
     np.testing.assert_allclose(r.hottest.temperature, centre, rtol=0.0, atol=r.convergence.atol)
+    # the edges' own fixed temperature (boundary data)
     np.testing.assert_allclose(r.coldest.temperature, 0.0, rtol=0.0, atol=0.0)
     assert r.safety.status == "ok"
     assert r.safety.checks[0].limit == "max_temperature"
@@ -449,9 +455,9 @@ def test_hottest_on_a_convective_edge_and_surface_limit() -> None:
                                                       max_temperature=400.0))
     r = solve_plate(p)
     assert r.hottest.description == "bottom edge"
+    # mid-face, by symmetry of the problem about x = W/2 (common practice, no source)
     np.testing.assert_allclose(r.hottest.position[0], 0.125, rtol=0.0, atol=1e-6)
-    # the hot face centre from the mpmath series of the convective-edge problem, y -> 0 not
-    # summable there, so compare with the solver's own value at the point
+    # consistency, not an outside value: the reported extreme is the solver's value there
     on_face = temperature_at(p, np.array([0.125]), np.array([0.0]))[0]
     np.testing.assert_allclose(r.hottest.temperature, on_face, rtol=0.0, atol=1e-6)
     assert r.safety.status == "exceeded"
