@@ -135,7 +135,7 @@ def test_pair_norm_matches_quadrature():
     for m, nrm in zip(mu, norm, strict=True):
         phi = float(eigen.pair_phase("convective", 0.7, np.array([m]))[0])
         # independent implementation: mpmath quadrature of sin^2(mu s + phi)
-        ref = float(mpmath.quad(lambda s: mpmath.sin(m * s + phi) ** 2, [0, 1]))
+        ref = float(mpmath.quad(lambda s, m=m, phi=phi: mpmath.sin(m * s + phi) ** 2, [0, 1]))
         np.testing.assert_allclose(nrm, ref, rtol=1e-12, atol=0)
 
 
