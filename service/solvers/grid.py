@@ -36,6 +36,7 @@ from .grid_assembly import (
     cell_conductivity,
     cell_generation,
     has_radiation,
+    solve_surfaces,
     interior_conductances,
     surface_temperatures,
     table_range_warnings,
@@ -359,18 +360,9 @@ def _residual(setup: _Setup, temperature: _Array, time: float) -> float:
 
 
 def _surface(setup: _Setup, temperature: _Array, time: float) -> _Array:
-    """Boundary-face temperatures consistent with `temperature`, one fixed-point pass."""
-    bf = setup.boundary
+    """Boundary-face temperatures consistent with `temperature` (radiation solved exactly)."""
     k = cell_conductivity(setup.materials, temperature)
-    surface = temperature.ravel()[bf.cell]
-    if has_radiation(bf):
-        for _ in range(3):  # the face balance with radiation, relaxed a few passes
-            G, Q = boundary_terms(bf, k, surface, time)
-            surface = surface_temperatures(bf, k, G, Q, temperature)
-    else:
-        G, Q = boundary_terms(bf, k, surface, time)
-        surface = surface_temperatures(bf, k, G, Q, temperature)
-    return surface
+    return solve_surfaces(setup.boundary, k, temperature, time)
 
 
 def _guess(problem: GridProblem) -> float:
@@ -473,7 +465,7 @@ def _picard(setup: _Setup, cache: _SolverCache, temperature: _Array, time: float
                                    f"a temperature change of {change:.3g} K (atol "
                                    f"{setup.atol:.3g} K)")
             return temperature, lin
-        surface = surface_temperatures(setup.boundary, lin.k, lin.G, lin.Q, temperature)
+        surface = _surface(setup, temperature, time)
         lin = linearise(setup, temperature, surface, time)
     outcome.iterations = max(outcome.iterations, p.max_iterations)
     if outcome.status == "converged":
@@ -583,9 +575,7 @@ def solve_time_steps(setup: _Setup, cache: _SolverCache, outcome: _Outcome,
                 gross += h * (theta * a1 + (1.0 - theta) * a0)
                 if setup.nonlinear:
                     # the next step starts from coefficients consistent with the new field
-                    lin0 = linearise(setup, temperature,
-                                     surface_temperatures(setup.boundary, lin1.k, lin1.G,
-                                                          lin1.Q, temperature), t1)
+                    lin0 = linearise(setup, temperature, _surface(setup, temperature, t1), t1)
                 else:
                     lin0 = lin1
                 on_step(t1, temperature, lin0)
@@ -631,14 +621,58 @@ def face_temperatures(setup: _Setup, state: _State) -> tuple[_Array, _Array, _Ar
     return tx, ty, surf
 
 
-def interpolate_points(mesh: Mesh, temperature: _Array, tx: _Array, ty: _Array,
-                       points: _Array) -> _Array:
+def vertex_temperatures(mesh: Mesh, ids: _Array, tx: _Array, ty: _Array, i_f: _Array,
+                        j_f: _Array) -> _Array:
+    """Temperatures at grid vertices (i_f, j_f), degC, from the face temperatures around them.
+
+    Along each grid line through the vertex the two nearest face temperatures are interpolated
+    (linearly in y; in x linearly, or in ln r for axisymmetric bodies). A vertex on an edge
+    takes the value along that edge. Elsewhere the line lying on a material interface is used
+    (its faces carry the flux-continuous values, whereas interpolating across the interface
+    would miss the kink in the profile); with no interface, or both, the mean of the two lines.
+    """
+    nx, ny = mesh.nx, mesh.ny
+    xf, yf, xc, yc = mesh.x_faces, mesh.y_faces, mesh.x, mesh.y
+    ja = np.clip(j_f - 1, 0, ny - 1)
+    jb = np.clip(j_f, 0, ny - 1)
+    ia = np.clip(i_f - 1, 0, nx - 1)
+    ib = np.clip(i_f, 0, nx - 1)
+    # along the vertical line x = xf[i_f]: x faces below (ja) and above (jb)
+    wy = np.where(jb > ja, (yf[j_f] - yc[ja]) / np.where(jb > ja, yc[jb] - yc[ja], 1.0), 0.0)
+    along_x = tx[ja, i_f] + wy * (tx[jb, i_f] - tx[ja, i_f])
+    # along the horizontal line y = yf[j_f]: y faces left (ia) and right (ib)
+    split = ib > ia
+    if mesh.geometry == "axisymmetric":
+        wx = np.where(split, np.log(xf[i_f] / xc[ia]) / np.log(np.where(split, xc[ib], 2.0 * xc[ia])
+                                                                / xc[ia]), 0.0)
+    else:
+        wx = np.where(split, (xf[i_f] - xc[ia]) / np.where(split, xc[ib] - xc[ia], 1.0), 0.0)
+    along_y = ty[j_f, ia] + wx * (ty[j_f, ib] - ty[j_f, ia])
+    on_x_edge = (i_f == 0) | (i_f == nx)
+    on_y_edge = (j_f == 0) | (j_f == ny)
+    # material interfaces through the vertex: a vertical one separates columns ia and ib,
+    # a horizontal one rows ja and jb
+    vertical = split & ((ids[ja, ia] != ids[ja, ib]) | (ids[jb, ia] != ids[jb, ib]))
+    horizontal = (jb > ja) & ((ids[ja, ia] != ids[jb, ia]) | (ids[ja, ib] != ids[jb, ib]))
+    interior = np.where(vertical & ~horizontal, along_x,
+                        np.where(horizontal & ~vertical, along_y, 0.5 * (along_x + along_y)))
+    return np.where(on_x_edge & ~on_y_edge, along_x,
+                    np.where(on_y_edge & ~on_x_edge, along_y, interior))
+
+
+def interpolate_points(mesh: Mesh, ids: _Array, temperature: _Array, tx: _Array,
+                       ty: _Array, points: _Array) -> _Array:
     """Temperatures at points, degC, from the containing cell and its face temperatures.
 
-    Within the cell, T = T_P + (T_x - T_P) + (T_y - T_P), where T_x runs from the centre to the
-    face on the point's side (linear in x; in ln r for axisymmetric radial faces, exact for
-    radial conduction) and likewise T_y. The cell holds one material, so the face values carry
-    the flux continuity across zone boundaries.
+    The point lies in one quadrant of its cell, spanned by the centre (T_P), the nearest x
+    face (T_x), the nearest y face (T_y) and the cell vertex between them (T_v). Bilinear
+    interpolation over that quadrant::
+
+        T = T_P + f_x (T_x - T_P) + f_y (T_y - T_P) + f_x f_y (T_v - T_x - T_y + T_P)
+
+    with f_x linear in x (in ln r for axisymmetric radial faces, exact for radial conduction)
+    and f_y linear in y. The cell holds one material and its face values are the
+    flux-continuous ones, so the interpolation stays honest across zone boundaries.
     """
     if points.size == 0:
         return np.zeros(0)
@@ -649,8 +683,9 @@ def interpolate_points(mesh: Mesh, temperature: _Array, tx: _Array, ty: _Array,
     tc = temperature[j, i]
     xc, yc = mesh.x[i], mesh.y[j]
     east = px >= xc
-    xface = np.where(east, xf[i + 1], xf[i])
-    tfx = np.where(east, tx[j, i + 1], tx[j, i])
+    i_f = np.where(east, i + 1, i)
+    xface = xf[i_f]
+    tfx = tx[j, i_f]
     if mesh.geometry == "axisymmetric":
         with np.errstate(divide="ignore", invalid="ignore"):
             ok = (xface > 0.0) & (px > 0.0)
@@ -659,10 +694,11 @@ def interpolate_points(mesh: Mesh, temperature: _Array, tx: _Array, ty: _Array,
     else:
         fx = (px - xc) / (xface - xc)
     north = py >= yc
-    yface = np.where(north, yf[j + 1], yf[j])
-    tfy = np.where(north, ty[j + 1, i], ty[j, i])
-    fy = (py - yc) / (yface - yc)
-    return tc + fx * (tfx - tc) + fy * (tfy - tc)
+    j_f = np.where(north, j + 1, j)
+    tfy = ty[j_f, i]
+    fy = (py - yc) / (yf[j_f] - yc)
+    tv = vertex_temperatures(mesh, ids, tx, ty, i_f, j_f)
+    return tc + fx * (tfx - tc) + fy * (tfy - tc) + fx * fy * (tv - tfx - tfy + tc)
 
 
 def segment_flows(setup: _Setup, state: _State, surface: _Array) -> tuple[EdgeFlow, ...]:
@@ -868,9 +904,9 @@ def _estimate_errors(problem: GridProblem, run: _Run, atol: float, points: _Arra
     worst = np.zeros(probes.shape[0])
     for mine, theirs in zip(run.outputs, other.outputs, strict=False):
         tx, ty, _ = face_temperatures(run.setup, mine)
-        a = interpolate_points(mesh, mine.temperature, tx, ty, probes)
+        a = interpolate_points(mesh, run.setup.materials.ids, mine.temperature, tx, ty, probes)
         tx2, ty2, _ = face_temperatures(other.setup, theirs)
-        b = interpolate_points(other.setup.mesh, theirs.temperature, tx2, ty2, probes)
+        b = interpolate_points(other.setup.mesh, other.setup.materials.ids, theirs.temperature, tx2, ty2, probes)
         # error of this grid for order p = 2: refined: |a-b| * 4/3; coarsened: |a-b| / 3
         worst = np.maximum(worst, np.abs(a - b) * (4.0 / 3.0 if refine else 1.0 / 3.0))
     how = (f"{'refined' if refine else 'coarsened'} grid of {other.setup.mesh.cells} cells, "
@@ -923,7 +959,7 @@ def solve_grid(problem: GridProblem) -> GridResult:
     radial ones use the cylindrical-shell resistance ln(r2/r1)/(2 pi k), so layered media are
     exact; second order in space for smooth solutions. Time: theta scheme with the matrix
     factorisation reused while the matrix does not change. Temperature-dependent conductivity
-    (cell values interpolated in the table) and radiation (secant coefficient) are solved by
+    (cell values interpolated in the table) and radiation (tangent linearisation) are solved by
     Picard iteration to ``atol``. Linear systems: SuperLU for small and medium grids,
     Ruge-Stuben algebraic multigrid (pyamg) as a CG preconditioner for large ones.
 
@@ -959,7 +995,7 @@ def solve_grid(problem: GridProblem) -> GridResult:
     residual = _residual(setup, final.temperature, final.time) if problem.transient is None \
         else _residual_transient(run)
     tx, ty, surf = face_temperatures(setup, final)
-    point_t = interpolate_points(mesh, final.temperature, tx, ty, points)
+    point_t = interpolate_points(mesh, setup.materials.ids, final.temperature, tx, ty, points)
     edges = segment_flows(setup, final, surf)
     inflow = _boundary_inflow(setup, final.lin, final.temperature)
 
@@ -1029,7 +1065,7 @@ def _history(problem: GridProblem, run: _Run, points: _Array) -> TransientHistor
     pts, fields, eflow, sflow = [], [], [], []
     for st in run.outputs:
         tx, ty, surf = face_temperatures(setup, st)
-        pts.append(interpolate_points(setup.mesh, st.temperature, tx, ty, points))
+        pts.append(interpolate_points(setup.mesh, setup.materials.ids, st.temperature, tx, ty, points))
         if problem.output_grid:
             fields.append(st.temperature.copy())
         edges = segment_flows(setup, st, surf)
