@@ -643,8 +643,9 @@ def vertex_temperatures(mesh: Mesh, ids: _Array, tx: _Array, ty: _Array, i_f: _A
     # along the horizontal line y = yf[j_f]: y faces left (ia) and right (ib)
     split = ib > ia
     if mesh.geometry == "axisymmetric":
-        wx = np.where(split, np.log(xf[i_f] / xc[ia]) / np.log(np.where(split, xc[ib], 2.0 * xc[ia])
-                                                                / xc[ia]), 0.0)
+        num = np.log(np.where(split, xf[i_f], xc[ia]) / xc[ia])
+        den = np.log(np.where(split, xc[ib], 2.0 * xc[ia]) / xc[ia])
+        wx = np.where(split, num / den, 0.0)
     else:
         wx = np.where(split, (xf[i_f] - xc[ia]) / np.where(split, xc[ib] - xc[ia], 1.0), 0.0)
     along_y = ty[j_f, ia] + wx * (ty[j_f, ib] - ty[j_f, ia])

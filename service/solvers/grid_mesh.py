@@ -11,8 +11,11 @@ Geometric factors per cell (all shapes (ny, nx)):
 * ``volume``: planar dx dy (m^3 per m depth); axisymmetric pi (r_e^2 - r_w^2) dy (m^3).
 * half-cell shape factors ``s_west``, ``s_east``, ``s_south``, ``s_north`` (m per m depth, or
   m): the conductance from the cell centre to that face is ``k * s``. Planar x faces:
-  dy / (dx / 2). Axisymmetric radial faces: 2 pi dy / |ln(r_face / r_centre)|, the exact
-  resistance of a cylindrical shell (zero at the axis). Axial faces: face area / (dy / 2).
+  dy / (dx / 2). Axisymmetric radial faces: 2 pi r_face dy / |r_face - r_centre| (face area
+  over distance; zero at the axis). Axial faces: face area / (dy / 2).
+
+Layers are exact along x and y for planar bodies and along the axis of axisymmetric ones
+(series half-cell resistances); across radial layers the face-area form is second order.
 * boundary face areas ``area_bottom`` (nx,), ``area_top`` (nx,), ``area_left`` (ny,),
   ``area_right`` (ny,).
 
@@ -182,12 +185,12 @@ def build_mesh(problem: GridProblem, scale: float = 1.0) -> Mesh:
     else:
         ring = math.pi * (xf[1:] ** 2 - xf[:-1] ** 2)   # annulus area of each radial column
         volume = np.outer(dy, ring)
-        # cylindrical-shell resistance ln(r_face/r_centre) / (2 pi k dy): exact for radial
-        # conduction through a layer, so the harmonic combination stays exact for layers
-        with np.errstate(divide="ignore"):
-            inv_w = np.where(xf[:-1] > 0.0, 1.0 / np.log(xc / np.where(xf[:-1] > 0.0,
-                                                                         xf[:-1], 1.0)), 0.0)
-        inv_e = 1.0 / np.log(xf[1:] / xc)
+        # half-cell resistance (r_face - r_centre) / (2 pi r_face k dy), with the face's own
+        # area. The cylindrical-shell form ln(r_face/r_centre) would be exact for source-free
+        # radial layers but was measured to spoil second-order accuracy next to the axis,
+        # where regular solutions are even in r; the face-area form is second order throughout.
+        inv_w = np.where(xf[:-1] > 0.0, xf[:-1] / (xc - xf[:-1]), 0.0)   # zero at the axis
+        inv_e = xf[1:] / (xf[1:] - xc)
         s_west = np.outer(2.0 * math.pi * dy, inv_w)
         s_east = np.outer(2.0 * math.pi * dy, inv_e)
         sy = np.outer(2.0 / dy, ring)

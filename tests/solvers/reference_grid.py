@@ -75,6 +75,8 @@ CLAMP = GridProblem(
 _clamp_q = (80.0 - 30.0) / _CLAMP_L * (_CLAMP_K[0] * _CLAMP_T[0] + _CLAMP_K[1] * _CLAMP_T[1])
 
 # --- a heated pin in a ceramic sleeve (axisymmetric): ln(r2/r1) across the sleeve ------------
+# (radial conductances are second order, not exact, so the grid is fine and the tolerance
+# small; test_grid.py also checks the order of convergence towards this answer)
 # common practice, no source: steady radial conduction through a cylindrical shell,
 # T(r1) - T(r2) = Q / (2 pi k L) ln(r2/r1) with Q = q pi r1^2 L generated in the pin
 _PIN_R1, _PIN_R2, _PIN_LEN = 0.004, 0.015, 0.05
@@ -82,7 +84,7 @@ _PIN_Q, _PIN_K_SLEEVE, _PIN_K_CORE, _PIN_TS = 2.0e7, 1.4, 22.0, 60.0
 _pin_power = _PIN_Q * math.pi * _PIN_R1**2 * _PIN_LEN                     # W
 _pin_drop = _pin_power / (2 * math.pi * _PIN_K_SLEEVE * _PIN_LEN) * math.log(_PIN_R2 / _PIN_R1)
 PIN = GridProblem(
-    width=_PIN_R2, height=_PIN_LEN, geometry="axisymmetric", cells=Cells(22, 4),
+    width=_PIN_R2, height=_PIN_LEN, geometry="axisymmetric", cells=Cells(88, 2),
     conductivity=_PIN_K_SLEEVE,
     zones=(Zone("pin", (0.0, 0.0, _PIN_R1, _PIN_LEN), conductivity=_PIN_K_CORE,
                 generation=_PIN_Q),),
@@ -159,7 +161,7 @@ CASES: tuple[ReferenceCase, ...] = (
     ReferenceCase(
         "pin-sleeve-log-drop", "common practice, no source: cylindrical shell ln(r2/r1)",
         PIN, lambda r: r.point_temperatures, (_PIN_TS + _pin_drop, _pin_mid),
-        rtol=1e-10, atol=0.0),
+        rtol=2e-4, atol=0.0),
     ReferenceCase(
         "pin-sleeve-power", "common practice, no source: generated power leaves the surface",
         PIN, lambda r: np.array([-_edge(r, "right")]), (_pin_power,), rtol=1e-10, atol=0.0),
