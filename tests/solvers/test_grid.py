@@ -85,7 +85,7 @@ def _planar_problem(n: int, zones=()) -> GridProblem:
 
 def test_manufactured_planar_second_order():
     h, field_err, point_err = [], [], []
-    for n in (8, 16, 32, 64):
+    for n in (16, 32, 64, 128):
         r = solve_grid(_planar_problem(n))
         xx, yy = np.meshgrid(r.x, r.y)
         field_err.append(float(np.max(np.abs(r.field - _planar_exact(xx, yy)))))
@@ -94,21 +94,21 @@ def test_manufactured_planar_second_order():
         h.append(1.0 / n)
     # manufactured solution, common practice, no source: observed order ~2
     np.testing.assert_allclose(_slope(h, field_err), 2.0, rtol=0.0, atol=0.15)
-    np.testing.assert_allclose(_slope(h, point_err), 2.0, rtol=0.0, atol=0.2)
+    np.testing.assert_allclose(_slope(h, point_err), 2.0, rtol=0.0, atol=0.15)
 
 
 def test_manufactured_planar_non_uniform_grid():
     # a zone of the same conductivity only forces grid lines, making the grid non-uniform
     zones = (Zone("marker", (0.13, 0.27, 0.41, 0.61)),)
     h, err = [], []
-    for n in (8, 16, 32, 64):
+    for n in (16, 32, 64, 128):
         r = solve_grid(_planar_problem(n, zones))
         xx, yy = np.meshgrid(r.x, r.y)
         err.append(float(np.max(np.abs(r.field - _planar_exact(xx, yy)))))
         h.append(1.0 / n)
     assert not np.allclose(np.diff(r.x), np.diff(r.x)[0], rtol=1e-3, atol=0.0)
     # manufactured solution, common practice, no source
-    np.testing.assert_allclose(_slope(h, err), 2.0, rtol=0.0, atol=0.25)
+    np.testing.assert_allclose(_slope(h, err), 2.0, rtol=0.0, atol=0.15)
 
 
 _R, _HZ, _AR, _QA, _KA = 0.5, 0.6, 4.0, 1.0e3, 3.0
@@ -124,7 +124,7 @@ def _axi_exact(r, z):
 
 def test_manufactured_axisymmetric_second_order():
     h, err = [], []
-    for n in (8, 16, 32, 64):
+    for n in (16, 32, 64, 128):
         p = GridProblem(
             width=_R, height=_HZ, geometry="axisymmetric", cells=Cells(n, n), conductivity=_KA,
             generation=_QA,
@@ -143,7 +143,7 @@ def test_manufactured_axisymmetric_second_order():
                                            - _axi_exact(r.points[:, 0], r.points[:, 1]))))))
         h.append(1.0 / n)
     # manufactured solution, common practice, no source
-    np.testing.assert_allclose(_slope(h, err), 2.0, rtol=0.0, atol=0.2)
+    np.testing.assert_allclose(_slope(h, err), 2.0, rtol=0.0, atol=0.15)
 
 
 def test_sleeve_log_drop_converges_at_second_order():
@@ -169,7 +169,7 @@ def test_solid_cylinder_with_generation():
     np.testing.assert_allclose(r.point_temperatures,
                                [200.0 + q * radius**2 / (4 * k),
                                 200.0 + q * (radius**2 - 0.005**2) / (4 * k)],
-                               rtol=2e-4, atol=0.0)
+                               rtol=0.0, atol=2e-3)
 
 
 def test_series_cross_check_hot_top_edge():
