@@ -35,7 +35,7 @@ import numpy as np
 import scipy.sparse as sp
 
 from .grid_mesh import Mesh
-from .grid_model import GridProblem, Segment, is_table, segment_extent, table_at
+from .grid_model import GridProblem, Segment, TimedValue, is_table, segment_extent, table_at
 
 _Array = np.ndarray
 
@@ -49,11 +49,11 @@ KELVIN = 273.15
 class Materials:
     """Material of each cell and per-material properties (index 0 the body, i + 1 zone i)."""
 
-    ids: _Array                       # (ny, nx) int
+    ids: _Array  # (ny, nx) int
     conductivity: tuple[float | tuple[tuple[float, float], ...], ...]
-    generation: tuple[object, ...]    # float or time table per material
-    heat_capacity: _Array | None      # (ny, nx) rho c V, J/K (per m depth planar)
-    constant_k: _Array | None         # (ny, nx) when no material has a table, else None
+    generation: tuple[object, ...]  # float or time table per material
+    heat_capacity: _Array | None  # (ny, nx) rho c V, J/K (per m depth planar)
+    constant_k: _Array | None  # (ny, nx) when no material has a table, else None
 
     @property
     def linear(self) -> bool:
@@ -68,24 +68,47 @@ def build_materials(problem: GridProblem, mesh: Mesh) -> Materials:
         cols = (mesh.x > x0) & (mesh.x < x1)
         rows = (mesh.y > y0) & (mesh.y < y1)
         ids[np.ix_(rows, cols)] = i + 1
-    ks = (problem.conductivity, *(z.conductivity if z.conductivity is not None
-                                  else problem.conductivity for z in problem.zones))
-    gens = (problem.generation, *(z.generation if z.generation is not None
-                                  else problem.generation for z in problem.zones))
+    ks = (
+        problem.conductivity,
+        *(
+            z.conductivity if z.conductivity is not None else problem.conductivity
+            for z in problem.zones
+        ),
+    )
+    gens = (
+        problem.generation,
+        *(z.generation if z.generation is not None else problem.generation for z in problem.zones),
+    )
     heat_capacity = None
     if problem.transient is not None:
-        rho = np.array([problem.density, *(z.density if z.density is not None
-                                           else problem.density for z in problem.zones)],
-                       dtype=float)
-        c = np.array([problem.specific_heat, *(z.specific_heat if z.specific_heat is not None
-                                               else problem.specific_heat
-                                               for z in problem.zones)], dtype=float)
+        rho = np.array(
+            [
+                problem.density,
+                *(z.density if z.density is not None else problem.density for z in problem.zones),
+            ],
+            dtype=float,
+        )
+        c = np.array(
+            [
+                problem.specific_heat,
+                *(
+                    z.specific_heat if z.specific_heat is not None else problem.specific_heat
+                    for z in problem.zones
+                ),
+            ],
+            dtype=float,
+        )
         heat_capacity = (rho * c)[ids] * mesh.volume
     constant_k = None
     if not any(is_table(k) for k in ks):
         constant_k = np.array(ks, dtype=float)[ids]
-    return Materials(ids=ids, conductivity=ks, generation=gens, heat_capacity=heat_capacity,
-                     constant_k=constant_k)
+    return Materials(
+        ids=ids,
+        conductivity=ks,
+        generation=gens,
+        heat_capacity=heat_capacity,
+        constant_k=constant_k,
+    )
 
 
 def cell_conductivity(materials: Materials, temperature: _Array) -> _Array:
@@ -116,8 +139,10 @@ def table_range_warnings(materials: Materials, temperature: _Array) -> list[str]
         lo, hi = float(temperature[mask].min()), float(temperature[mask].max())
         if lo < tab[0, 0] or hi > tab[-1, 0]:
             where = "conductivity" if m == 0 else f"zones.{m - 1}.conductivity"
-            out.append(f"{where}: temperatures {lo:.4g} to {hi:.4g} degC leave the table's "
-                       f"range {tab[0, 0]:g} to {tab[-1, 0]:g} degC; the end values were used")
+            out.append(
+                f"{where}: temperatures {lo:.4g} to {hi:.4g} degC leave the table's "
+                f"range {tab[0, 0]:g} to {tab[-1, 0]:g} degC; the end values were used"
+            )
     return out
 
 
@@ -147,16 +172,16 @@ def interior_conductances(mesh: Mesh, k: _Array) -> tuple[_Array, _Array]:
 class BoundaryFaces:
     """All boundary faces, edge by edge (bottom, right, top, left), with their segment."""
 
-    edge: _Array          # (F,) int, index into EDGE order
-    cell: _Array          # (F,) flat index of the adjacent cell
-    shape: _Array         # (F,) half-cell shape factor (conductance = k * shape)
-    area: _Array          # (F,) face area, m^2 (per m depth planar)
-    along: _Array         # (F,) face midpoint along the edge's own coordinate, m
-    x: _Array             # (F,) face midpoint x, m
-    y: _Array             # (F,) face midpoint y, m
-    segment: _Array       # (F,) index into `segments`, -1 where not covered (insulated)
+    edge: _Array  # (F,) int, index into EDGE order
+    cell: _Array  # (F,) flat index of the adjacent cell
+    shape: _Array  # (F,) half-cell shape factor (conductance = k * shape)
+    area: _Array  # (F,) face area, m^2 (per m depth planar)
+    along: _Array  # (F,) face midpoint along the edge's own coordinate, m
+    x: _Array  # (F,) face midpoint x, m
+    y: _Array  # (F,) face midpoint y, m
+    segment: _Array  # (F,) index into `segments`, -1 where not covered (insulated)
     segments: tuple[tuple[str, int, Segment], ...]
-    faces_of: tuple[_Array, ...]   # face indices of each segment
+    faces_of: tuple[_Array, ...]  # face indices of each segment
 
 
 def build_boundary(problem: GridProblem, mesh: Mesh) -> BoundaryFaces:
@@ -165,14 +190,42 @@ def build_boundary(problem: GridProblem, mesh: Mesh) -> BoundaryFaces:
     jj = np.arange(ny)
     ii = np.arange(nx)
     parts = {
-        "bottom": (ii, ii, mesh.s_south[0, :], mesh.area_bottom, mesh.x,
-                   mesh.x, np.full(nx, mesh.y_faces[0])),
-        "right": (jj * nx + nx - 1, jj, mesh.s_east[:, -1], mesh.area_right, mesh.y,
-                  np.full(ny, mesh.x_faces[-1]), mesh.y),
-        "top": ((ny - 1) * nx + ii, ii, mesh.s_north[-1, :], mesh.area_top, mesh.x,
-                mesh.x, np.full(nx, mesh.y_faces[-1])),
-        "left": (jj * nx, jj, mesh.s_west[:, 0], mesh.area_left, mesh.y,
-                 np.full(ny, mesh.x_faces[0]), mesh.y),
+        "bottom": (
+            ii,
+            ii,
+            mesh.s_south[0, :],
+            mesh.area_bottom,
+            mesh.x,
+            mesh.x,
+            np.full(nx, mesh.y_faces[0]),
+        ),
+        "right": (
+            jj * nx + nx - 1,
+            jj,
+            mesh.s_east[:, -1],
+            mesh.area_right,
+            mesh.y,
+            np.full(ny, mesh.x_faces[-1]),
+            mesh.y,
+        ),
+        "top": (
+            (ny - 1) * nx + ii,
+            ii,
+            mesh.s_north[-1, :],
+            mesh.area_top,
+            mesh.x,
+            mesh.x,
+            np.full(nx, mesh.y_faces[-1]),
+        ),
+        "left": (
+            jj * nx,
+            jj,
+            mesh.s_west[:, 0],
+            mesh.area_left,
+            mesh.y,
+            np.full(ny, mesh.x_faces[0]),
+            mesh.y,
+        ),
     }
     edge_l, cell_l, shape_l, area_l, along_l, x_l, y_l, seg_l = [], [], [], [], [], [], [], []
     segments: list[tuple[str, int, Segment]] = []
@@ -194,19 +247,34 @@ def build_boundary(problem: GridProblem, mesh: Mesh) -> BoundaryFaces:
         seg_l.append(seg_id)
     segment = np.concatenate(seg_l)
     faces_of = tuple(np.flatnonzero(segment == s) for s in range(len(segments)))
-    return BoundaryFaces(edge=np.concatenate(edge_l), cell=np.concatenate(cell_l),
-                         shape=np.concatenate(shape_l), area=np.concatenate(area_l),
-                         along=np.concatenate(along_l), x=np.concatenate(x_l),
-                         y=np.concatenate(y_l), segment=segment, segments=tuple(segments),
-                         faces_of=faces_of)
+    return BoundaryFaces(
+        edge=np.concatenate(edge_l),
+        cell=np.concatenate(cell_l),
+        shape=np.concatenate(shape_l),
+        area=np.concatenate(area_l),
+        along=np.concatenate(along_l),
+        x=np.concatenate(x_l),
+        y=np.concatenate(y_l),
+        segment=segment,
+        segments=tuple(segments),
+        faces_of=faces_of,
+    )
 
 
 def has_radiation(bf: BoundaryFaces) -> bool:
     return any(seg.emissivity is not None for _, _, seg in bf.segments)
 
 
-def boundary_terms(bf: BoundaryFaces, k_cells: _Array, surface: _Array, time: float
-                   ) -> tuple[_Array, _Array]:
+def _given(value: TimedValue | None) -> TimedValue:
+    """A value that `validate` guarantees to be present."""
+    if value is None:
+        raise ValueError("a required boundary value is missing (validate the problem first)")
+    return value
+
+
+def boundary_terms(
+    bf: BoundaryFaces, k_cells: _Array, surface: _Array, time: float
+) -> tuple[_Array, _Array]:
     """Stage 3b: affine inflow Q_f - G_f T_P of each boundary face at `time`.
 
     Parameters
@@ -228,13 +296,19 @@ def boundary_terms(bf: BoundaryFaces, k_cells: _Array, surface: _Array, time: fl
         if f.size == 0 or seg.type == "insulated":
             continue
         if seg.type == "temperature":
-            tb = (np.interp(bf.along[f], *np.asarray(seg.profile, dtype=float).T)
-                  if seg.profile is not None else table_at(seg.value, time))  # type: ignore[arg-type]
+            tb = (
+                np.interp(bf.along[f], *np.asarray(seg.profile, dtype=float).T)
+                if seg.profile is not None
+                else table_at(_given(seg.value), time)
+            )
             G[f] = g_half[f]
             Q[f] = g_half[f] * tb
         elif seg.type == "flux":
-            qs = (np.interp(bf.along[f], *np.asarray(seg.profile, dtype=float).T)
-                  if seg.profile is not None else table_at(seg.value, time))  # type: ignore[arg-type]
+            qs = (
+                np.interp(bf.along[f], *np.asarray(seg.profile, dtype=float).T)
+                if seg.profile is not None
+                else table_at(_given(seg.value), time)
+            )
             Q[f] = qs * bf.area[f]
         else:  # convection and/or radiation
             h = 0.0 if seg.film_coefficient is None else table_at(seg.film_coefficient, time)
@@ -242,8 +316,9 @@ def boundary_terms(bf: BoundaryFaces, k_cells: _Array, surface: _Array, time: fl
             h_tot = np.full(f.size, h)
             h_t = np.full(f.size, h * t_amb)
             if seg.emissivity is not None:
-                t_sur = table_at(seg.surroundings if seg.surroundings is not None
-                                 else seg.ambient, time)  # type: ignore[arg-type]
+                t_sur = table_at(
+                    _given(seg.surroundings if seg.surroundings is not None else seg.ambient), time
+                )
                 ts_k = np.maximum(surface[f] + KELVIN, 1.0)
                 sur_k = t_sur + KELVIN
                 # radiation linearised about the surface estimate T0 (Newton's tangent):
@@ -264,8 +339,9 @@ def boundary_terms(bf: BoundaryFaces, k_cells: _Array, surface: _Array, time: fl
     return G, Q
 
 
-def surface_temperatures(bf: BoundaryFaces, k_cells: _Array, G: _Array, Q: _Array,
-                         temperature: _Array) -> _Array:
+def surface_temperatures(
+    bf: BoundaryFaces, k_cells: _Array, G: _Array, Q: _Array, temperature: _Array
+) -> _Array:
     """Temperature on each boundary face from the half-cell balance, degC.
 
     The inflow Q_f - G_f T_P crosses the half cell, so T_face = T_P + inflow / g_half; at the
@@ -278,8 +354,7 @@ def surface_temperatures(bf: BoundaryFaces, k_cells: _Array, G: _Array, Q: _Arra
         return np.where(g_half > 0.0, tc + inflow / np.where(g_half > 0.0, g_half, 1.0), tc)
 
 
-def solve_surfaces(bf: BoundaryFaces, k_cells: _Array, temperature: _Array, time: float
-                   ) -> _Array:
+def solve_surfaces(bf: BoundaryFaces, k_cells: _Array, temperature: _Array, time: float) -> _Array:
     """Surface temperature of every boundary face for given cell temperatures, degC.
 
     Faces without radiation follow from the linear half-cell balance. On radiating faces the
@@ -297,8 +372,9 @@ def solve_surfaces(bf: BoundaryFaces, k_cells: _Array, temperature: _Array, time
             continue
         h = 0.0 if seg.film_coefficient is None else table_at(seg.film_coefficient, time)
         t_amb = 0.0 if seg.ambient is None else table_at(seg.ambient, time)
-        t_sur = table_at(seg.surroundings if seg.surroundings is not None else seg.ambient,
-                         time)  # type: ignore[arg-type]
+        t_sur = table_at(
+            _given(seg.surroundings if seg.surroundings is not None else seg.ambient), time
+        )
         area, gh = bf.area[f], g_half[f]
         tc = temperature.ravel()[bf.cell[f]]
         k_rad = seg.emissivity * STEFAN_BOLTZMANN * area
@@ -323,9 +399,9 @@ def build_matrix(mesh: Mesh, gx: _Array, gy: _Array, diagonal: _Array) -> sp.csr
     """
     nx, ny = mesh.nx, mesh.ny
     n = nx * ny
-    ew = np.zeros((ny, nx + 1))   # conductance of each x face, boundary faces zero
+    ew = np.zeros((ny, nx + 1))  # conductance of each x face, boundary faces zero
     ew[:, 1:-1] = gx
-    ns = np.zeros((ny + 1, nx))   # conductance of each y face
+    ns = np.zeros((ny + 1, nx))  # conductance of each y face
     ns[1:-1, :] = gy
     main = diagonal + ew[:, :-1] + ew[:, 1:] + ns[:-1, :] + ns[1:, :]
     p = np.arange(n).reshape(ny, nx)
@@ -333,26 +409,28 @@ def build_matrix(mesh: Mesh, gx: _Array, gy: _Array, diagonal: _Array) -> sp.csr
     # are built directly: a COO round trip costs several times more at a million cells.
     vals = np.stack([-ns[:-1, :], -ew[:, :-1], main, -ew[:, 1:], -ns[1:, :]], axis=-1)
     cols = np.stack([p - nx, p - 1, p, p + 1, p + nx], axis=-1)
-    keep = np.ones((ny, nx, 5), dtype=bool)
-    keep[0, :, 0] = False
-    keep[:, 0, 1] = False
-    keep[:, -1, 3] = False
-    keep[-1, :, 4] = False
-    keep = keep.reshape(n, 5)
+    exists = np.ones((ny, nx, 5), dtype=bool)
+    exists[0, :, 0] = False
+    exists[:, 0, 1] = False
+    exists[:, -1, 3] = False
+    exists[-1, :, 4] = False
+    keep = exists.reshape(n, 5)
     indptr = np.zeros(n + 1, dtype=np.int64)
     np.cumsum(keep.sum(axis=1), out=indptr[1:])
     itype = np.int32 if 5 * n < 2**31 - 1 else np.int64
-    return sp.csr_matrix((vals.reshape(n, 5)[keep], cols.reshape(n, 5)[keep].astype(itype),
-                          indptr.astype(itype)), shape=(n, n))
+    return sp.csr_matrix(
+        (vals.reshape(n, 5)[keep], cols.reshape(n, 5)[keep].astype(itype), indptr.astype(itype)),
+        shape=(n, n),
+    )
 
 
 def apply_matrix(gx: _Array, gy: _Array, diagonal: _Array, temperature: _Array) -> _Array:
     """The product of `build_matrix`'s matrix with a (ny, nx) field, without building it."""
     out = diagonal * temperature
-    fx = gx * (temperature[:, :-1] - temperature[:, 1:])   # flow from each cell to its east
+    fx = gx * (temperature[:, :-1] - temperature[:, 1:])  # flow from each cell to its east
     out[:, :-1] += fx
     out[:, 1:] -= fx
-    fy = gy * (temperature[:-1, :] - temperature[1:, :])   # flow from each cell to its north
+    fy = gy * (temperature[:-1, :] - temperature[1:, :])  # flow from each cell to its north
     out[:-1, :] += fy
     out[1:, :] -= fy
     return out

@@ -108,8 +108,10 @@ def distribute(breaks: Sequence[float], n: int) -> tuple[int, ...]:
 
 
 def _lines(breaks: Sequence[float], counts: Sequence[int]) -> _Array:
-    parts = [np.linspace(a, b, c + 1)[:-1] for a, b, c in zip(breaks[:-1], breaks[1:], counts,
-                                                               strict=True)]
+    parts = [
+        np.linspace(a, b, c + 1)[:-1]
+        for a, b, c in zip(breaks[:-1], breaks[1:], counts, strict=True)
+    ]
     return np.concatenate([*parts, [breaks[-1]]])
 
 
@@ -129,8 +131,9 @@ def grid_breaks(problem: GridProblem) -> tuple[tuple[float, ...], tuple[float, .
     return breakpoints(problem.width, cx), breakpoints(problem.height, cy)
 
 
-def plan_mesh(problem: GridProblem, scale: float = 1.0
-              ) -> tuple[tuple[float, ...], tuple[float, ...], tuple[int, ...], tuple[int, ...]]:
+def plan_mesh(
+    problem: GridProblem, scale: float = 1.0
+) -> tuple[tuple[float, ...], tuple[float, ...], tuple[int, ...], tuple[int, ...]]:
     """Grid lines and per-interval cell counts, without allocating anything large.
 
     `scale` multiplies the count of every interval (2: refine, 0.5: coarsen, at least 1 each).
@@ -162,8 +165,11 @@ def build_mesh(problem: GridProblem, scale: float = 1.0) -> Mesh:
     bx, by, cx, cy = plan_mesh(problem, scale)
     cells = sum(cx) * sum(cy)
     if cells > problem.max_cells:
-        raise TooLargeError(f"cells: the grid needs {sum(cx)} x {sum(cy)} = {cells} cells, "
-                            f"beyond the cap of {problem.max_cells}", field="cells")
+        raise TooLargeError(
+            f"cells: the grid needs {sum(cx)} x {sum(cy)} = {cells} cells, "
+            f"beyond the cap of {problem.max_cells}",
+            field="cells",
+        )
     xf = _lines(bx, cx)
     yf = _lines(by, cy)
     xc = 0.5 * (xf[:-1] + xf[1:])
@@ -172,10 +178,10 @@ def build_mesh(problem: GridProblem, scale: float = 1.0) -> Mesh:
     dy = np.diff(yf)
     if problem.geometry == "planar":
         volume = np.outer(dy, dx)
-        sx = np.outer(dy, 2.0 / dx)         # dy / (dx/2), same for west and east halves
+        sx = np.outer(dy, 2.0 / dx)  # dy / (dx/2), same for west and east halves
         s_west = sx
         s_east = sx
-        sy = np.outer(2.0 / dy, dx)         # dx / (dy/2)
+        sy = np.outer(2.0 / dy, dx)  # dx / (dy/2)
         s_south = sy
         s_north = sy
         area_bottom = dx.copy()
@@ -183,13 +189,13 @@ def build_mesh(problem: GridProblem, scale: float = 1.0) -> Mesh:
         area_left = dy.copy()
         area_right = dy.copy()
     else:
-        ring = math.pi * (xf[1:] ** 2 - xf[:-1] ** 2)   # annulus area of each radial column
+        ring = math.pi * (xf[1:] ** 2 - xf[:-1] ** 2)  # annulus area of each radial column
         volume = np.outer(dy, ring)
         # half-cell resistance (r_face - r_centre) / (2 pi r_face k dy), with the face's own
         # area. The cylindrical-shell form ln(r_face/r_centre) would be exact for source-free
         # radial layers but was measured to spoil second-order accuracy next to the axis,
         # where regular solutions are even in r; the face-area form is second order throughout.
-        inv_w = np.where(xf[:-1] > 0.0, xf[:-1] / (xc - xf[:-1]), 0.0)   # zero at the axis
+        inv_w = np.where(xf[:-1] > 0.0, xf[:-1] / (xc - xf[:-1]), 0.0)  # zero at the axis
         inv_e = xf[1:] / (xf[1:] - xc)
         s_west = np.outer(2.0 * math.pi * dy, inv_w)
         s_east = np.outer(2.0 * math.pi * dy, inv_e)
@@ -198,9 +204,25 @@ def build_mesh(problem: GridProblem, scale: float = 1.0) -> Mesh:
         s_north = sy
         area_bottom = ring.copy()
         area_top = ring.copy()
-        area_left = np.zeros_like(dy)                   # the axis
+        area_left = np.zeros_like(dy)  # the axis
         area_right = 2.0 * math.pi * xf[-1] * dy
-    return Mesh(geometry=problem.geometry, x_faces=xf, y_faces=yf, x=xc, y=yc, volume=volume,
-                s_west=s_west, s_east=s_east, s_south=s_south, s_north=s_north,
-                area_bottom=area_bottom, area_top=area_top, area_left=area_left,
-                area_right=area_right, breaks_x=bx, breaks_y=by, counts_x=cx, counts_y=cy)
+    return Mesh(
+        geometry=problem.geometry,
+        x_faces=xf,
+        y_faces=yf,
+        x=xc,
+        y=yc,
+        volume=volume,
+        s_west=s_west,
+        s_east=s_east,
+        s_south=s_south,
+        s_north=s_north,
+        area_bottom=area_bottom,
+        area_top=area_top,
+        area_left=area_left,
+        area_right=area_right,
+        breaks_x=bx,
+        breaks_y=by,
+        counts_x=cx,
+        counts_y=cy,
+    )

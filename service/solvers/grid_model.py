@@ -104,8 +104,12 @@ class Edges:
     left: tuple[Segment, ...] = ()
 
     def named(self) -> tuple[tuple[str, tuple[Segment, ...]], ...]:
-        return (("bottom", self.bottom), ("right", self.right), ("top", self.top),
-                ("left", self.left))
+        return (
+            ("bottom", self.bottom),
+            ("right", self.right),
+            ("top", self.top),
+            ("left", self.left),
+        )
 
 
 @dataclass(frozen=True)
@@ -236,9 +240,9 @@ def is_table(value: object) -> bool:
 
 def table_at(value: TimedValue, x: float) -> float:
     """Value of a constant or of a piecewise-linear table at abscissa `x` (held beyond ends)."""
-    if not is_table(value):
-        return float(value)  # type: ignore[arg-type]
-    pts = value  # type: ignore[assignment]
+    if not isinstance(value, (tuple, list)):
+        return float(value)
+    pts = value
     if x <= pts[0][0]:
         return float(pts[0][1])
     for (x0, v0), (x1, v1) in zip(pts[:-1], pts[1:], strict=True):
@@ -251,8 +255,9 @@ def _finite(v: object) -> bool:
     return isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v)
 
 
-def _check_number(v: object, path: str, *, positive: bool = False,
-                  nonnegative: bool = False) -> None:
+def _check_number(
+    v: object, path: str, *, positive: bool = False, nonnegative: bool = False
+) -> None:
     if not _finite(v):
         raise IllPosedError(f"{path} must be a finite number, got {v!r}", field=path)
     if positive and not v > 0.0:  # type: ignore[operator]
@@ -261,24 +266,33 @@ def _check_number(v: object, path: str, *, positive: bool = False,
         raise IllPosedError(f"{path} must be >= 0, got {v}", field=path)
 
 
-def _check_table(tab: object, path: str, what: str, *, positive: bool = False,
-                 nonnegative: bool = False, strictly: bool = True) -> None:
-    if not is_table(tab) or len(tab) < 1:  # type: ignore[arg-type]
+def _check_table(
+    tab: object,
+    path: str,
+    what: str,
+    *,
+    positive: bool = False,
+    nonnegative: bool = False,
+    strictly: bool = True,
+) -> None:
+    if not isinstance(tab, (tuple, list)) or len(tab) < 1:
         raise IllPosedError(f"{path} must be a number or a non-empty {what} table", field=path)
     prev = -math.inf
-    for n, pair in enumerate(tab):  # type: ignore[union-attr]
+    for n, pair in enumerate(tab):
         if not is_table(pair) or len(pair) != 2:
             raise IllPosedError(f"{path}.{n} must be a pair [{what}, value]", field=f"{path}.{n}")
         _check_number(pair[0], f"{path}.{n}.0")
         _check_number(pair[1], f"{path}.{n}.1", positive=positive, nonnegative=nonnegative)
         if strictly and not pair[0] > prev:
-            raise IllPosedError(f"{path}: the {what} column must increase strictly",
-                                field=f"{path}.{n}.0")
+            raise IllPosedError(
+                f"{path}: the {what} column must increase strictly", field=f"{path}.{n}.0"
+            )
         prev = pair[0]
 
 
-def _check_value(v: object, path: str, *, timed: bool, positive: bool = False,
-                 nonnegative: bool = False) -> None:
+def _check_value(
+    v: object, path: str, *, timed: bool, positive: bool = False, nonnegative: bool = False
+) -> None:
     if is_table(v):
         if not timed:
             raise IllPosedError(f"{path}: a time table needs a transient run", field=path)
@@ -293,14 +307,17 @@ def _check_value(v: object, path: str, *, timed: bool, positive: bool = False,
 
 def segment_extent(seg: Segment, length: float) -> tuple[float, float]:
     """(start, end) of a segment along an edge of `length`, None filled in."""
-    return (0.0 if seg.start is None else float(seg.start),
-            length if seg.end is None else float(seg.end))
+    return (
+        0.0 if seg.start is None else float(seg.start),
+        length if seg.end is None else float(seg.end),
+    )
 
 
 def _validate_segment(seg: Segment, path: str, length: float, timed: bool) -> None:
     if seg.type not in SEGMENT_TYPES:
-        raise IllPosedError(f"{path}.type must be one of {SEGMENT_TYPES}, got {seg.type!r}",
-                            field=f"{path}.type")
+        raise IllPosedError(
+            f"{path}.type must be one of {SEGMENT_TYPES}, got {seg.type!r}", field=f"{path}.type"
+        )
     for name in ("start", "end"):
         v = getattr(seg, name)
         if v is not None:
@@ -309,39 +326,49 @@ def _validate_segment(seg: Segment, path: str, length: float, timed: bool) -> No
     tol = 1e-12 * length
     if not (-tol <= s0 < s1 <= length + tol):
         raise IllPosedError(
-            f"{path}: need 0 <= from < to <= edge length {length:g} m, got from={s0:g}, "
-            f"to={s1:g}", field=f"{path}.to")
+            f"{path}: need 0 <= from < to <= edge length {length:g} m, got from={s0:g}, to={s1:g}",
+            field=f"{path}.to",
+        )
     if seg.profile is not None:
         if seg.type not in ("temperature", "flux"):
-            raise IllPosedError(f"{path}.profile is allowed on temperature and flux segments",
-                                field=f"{path}.profile")
+            raise IllPosedError(
+                f"{path}.profile is allowed on temperature and flux segments",
+                field=f"{path}.profile",
+            )
         if seg.value is not None:
-            raise IllPosedError(f"{path}: give value or profile, not both",
-                                field=f"{path}.profile")
+            raise IllPosedError(f"{path}: give value or profile, not both", field=f"{path}.profile")
         _check_table(seg.profile, f"{path}.profile", "position")
     if seg.type in ("temperature", "flux"):
         if seg.profile is None:
             if seg.value is None:
-                raise IllPosedError(f"{path}.value is required for a {seg.type} segment",
-                                    field=f"{path}.value")
+                raise IllPosedError(
+                    f"{path}.value is required for a {seg.type} segment", field=f"{path}.value"
+                )
             _check_value(seg.value, f"{path}.value", timed=timed)
     if seg.type == "convection":
         if seg.film_coefficient is None or seg.ambient is None:
-            raise IllPosedError(f"{path}: a convection segment needs film_coefficient and "
-                                "ambient", field=f"{path}.film_coefficient")
+            raise IllPosedError(
+                f"{path}: a convection segment needs film_coefficient and ambient",
+                field=f"{path}.film_coefficient",
+            )
     if seg.type == "radiation":
         if seg.emissivity is None:
-            raise IllPosedError(f"{path}.emissivity is required for a radiation segment",
-                                field=f"{path}.emissivity")
+            raise IllPosedError(
+                f"{path}.emissivity is required for a radiation segment", field=f"{path}.emissivity"
+            )
         if seg.surroundings is None and seg.ambient is None:
-            raise IllPosedError(f"{path}.surroundings is required for a radiation segment",
-                                field=f"{path}.surroundings")
+            raise IllPosedError(
+                f"{path}.surroundings is required for a radiation segment",
+                field=f"{path}.surroundings",
+            )
         if seg.film_coefficient is not None and seg.ambient is None:
-            raise IllPosedError(f"{path}.ambient is required with film_coefficient",
-                                field=f"{path}.ambient")
+            raise IllPosedError(
+                f"{path}.ambient is required with film_coefficient", field=f"{path}.ambient"
+            )
     if seg.film_coefficient is not None:
-        _check_value(seg.film_coefficient, f"{path}.film_coefficient", timed=timed,
-                     nonnegative=True)
+        _check_value(
+            seg.film_coefficient, f"{path}.film_coefficient", timed=timed, nonnegative=True
+        )
     for name in ("ambient", "surroundings"):
         v = getattr(seg, name)
         if v is not None:
@@ -349,11 +376,15 @@ def _validate_segment(seg: Segment, path: str, length: float, timed: bool) -> No
     if seg.emissivity is not None:
         _check_number(seg.emissivity, f"{path}.emissivity")
         if not 0.0 < seg.emissivity <= 1.0:
-            raise IllPosedError(f"{path}.emissivity must be in (0, 1], got {seg.emissivity}",
-                                field=f"{path}.emissivity")
+            raise IllPosedError(
+                f"{path}.emissivity must be in (0, 1], got {seg.emissivity}",
+                field=f"{path}.emissivity",
+            )
         if seg.type not in ("convection", "radiation"):
-            raise IllPosedError(f"{path}.emissivity applies to convection and radiation "
-                                "segments only", field=f"{path}.emissivity")
+            raise IllPosedError(
+                f"{path}.emissivity applies to convection and radiation segments only",
+                field=f"{path}.emissivity",
+            )
 
 
 def _validate_conductivity(k: object, path: str) -> None:
@@ -396,20 +427,23 @@ def validate(problem: GridProblem) -> tuple[str, ...]:
     _check_number(p.width, "width", positive=True)
     _check_number(p.height, "height", positive=True)
     if p.geometry not in GEOMETRIES:
-        raise IllPosedError(f"geometry must be one of {GEOMETRIES}, got {p.geometry!r}",
-                            field="geometry")
+        raise IllPosedError(
+            f"geometry must be one of {GEOMETRIES}, got {p.geometry!r}", field="geometry"
+        )
     for name in ("nx", "ny"):
         n = getattr(p.cells, name)
         if not isinstance(n, int) or isinstance(n, bool) or n < 1:
-            raise IllPosedError(f"cells.{name} must be an integer >= 1, got {n!r}",
-                                field=f"cells.{name}")
+            raise IllPosedError(
+                f"cells.{name} must be an integer >= 1, got {n!r}", field=f"cells.{name}"
+            )
     if p.cells.nx * p.cells.ny > p.max_cells:
         raise TooLargeError(
             f"cells: {p.cells.nx} x {p.cells.ny} = {p.cells.nx * p.cells.ny} cells exceeds "
-            f"the cap of {p.max_cells}", field="cells")
+            f"the cap of {p.max_cells}",
+            field="cells",
+        )
     if p.linear_solver not in LINEAR_SOLVERS:
-        raise IllPosedError(f"linear_solver must be one of {LINEAR_SOLVERS}",
-                            field="linear_solver")
+        raise IllPosedError(f"linear_solver must be one of {LINEAR_SOLVERS}", field="linear_solver")
     if not isinstance(p.max_iterations, int) or p.max_iterations < 1:
         raise IllPosedError("max_iterations must be an integer >= 1", field="max_iterations")
     if p.atol is not None:
@@ -433,7 +467,9 @@ def validate(problem: GridProblem) -> tuple[str, ...]:
         if not (-tol_x <= x0 < x1 <= p.width + tol_x and -tol_y <= y0 < y1 <= p.height + tol_y):
             raise IllPosedError(
                 f"{path}.region must satisfy 0 <= x0 < x1 <= width and 0 <= y0 < y1 <= height, "
-                f"got {tuple(z.region)}", field=f"{path}.region")
+                f"got {tuple(z.region)}",
+                field=f"{path}.region",
+            )
         if z.conductivity is not None:
             _validate_conductivity(z.conductivity, f"{path}.conductivity")
         if z.generation is not None:
@@ -456,21 +492,29 @@ def validate(problem: GridProblem) -> tuple[str, ...]:
         tol = 1e-9 * length
         for s0, s1, n in spans:
             if s0 < covered - tol:
-                raise IllPosedError(f"edges.{edge}.{n} overlaps another segment of that edge "
-                                    f"near {s0:g} m", field=f"edges.{edge}.{n}.from")
+                raise IllPosedError(
+                    f"edges.{edge}.{n} overlaps another segment of that edge near {s0:g} m",
+                    field=f"edges.{edge}.{n}.from",
+                )
             if s0 > covered + tol and segs:
-                warnings.append(f"edges.{edge}: {covered:g} m to {s0:g} m is not covered by a "
-                                "segment and is treated as insulated")
+                warnings.append(
+                    f"edges.{edge}: {covered:g} m to {s0:g} m is not covered by a "
+                    "segment and is treated as insulated"
+                )
             covered = max(covered, s1)
         if segs and covered < length - tol:
-            warnings.append(f"edges.{edge}: {covered:g} m to {length:g} m is not covered by a "
-                            "segment and is treated as insulated")
+            warnings.append(
+                f"edges.{edge}: {covered:g} m to {length:g} m is not covered by a "
+                "segment and is treated as insulated"
+            )
     if p.geometry == "axisymmetric":
         for n, seg in enumerate(p.edges.left):
             if seg.type != "insulated":
                 raise IllPosedError(
                     "edges.left is the axis of an axisymmetric body (x = 0) and must be "
-                    f"insulated, got {seg.type!r}", field=f"edges.left.{n}.type")
+                    f"insulated, got {seg.type!r}",
+                    field=f"edges.left.{n}.type",
+                )
 
     for n, pt in enumerate(p.points):
         if len(pt) != 2:
@@ -479,37 +523,46 @@ def validate(problem: GridProblem) -> tuple[str, ...]:
         _check_number(pt[1], f"points.{n}.1")
         tol_x, tol_y = 1e-12 * p.width, 1e-12 * p.height
         if not (-tol_x <= pt[0] <= p.width + tol_x and -tol_y <= pt[1] <= p.height + tol_y):
-            raise IllPosedError(f"points.{n} = {tuple(pt)} lies outside the domain "
-                                f"[0, {p.width:g}] x [0, {p.height:g}]", field=f"points.{n}")
+            raise IllPosedError(
+                f"points.{n} = {tuple(pt)} lies outside the domain "
+                f"[0, {p.width:g}] x [0, {p.height:g}]",
+                field=f"points.{n}",
+            )
 
     if p.transient is None:
         if not _has_sink(p):
             raise IllPosedError(
                 "edges: no edge fixes a temperature, convects or radiates, so a steady state "
                 "exists only if the heat inputs balance exactly and is then not unique; add "
-                "a temperature, convection or radiation segment", field="edges",
-                reason="not-unique")
+                "a temperature, convection or radiation segment",
+                field="edges",
+                reason="not-unique",
+            )
     else:
         tr = p.transient
         _check_number(tr.initial_temperature, "transient.initial_temperature")
         _check_number(tr.time_step, "transient.time_step", positive=True)
         if tr.scheme not in SCHEMES:
-            raise IllPosedError(f"transient.scheme must be one of {SCHEMES}",
-                                field="transient.scheme")
+            raise IllPosedError(
+                f"transient.scheme must be one of {SCHEMES}", field="transient.scheme"
+            )
         if len(tr.times) == 0:
-            raise IllPosedError("transient.times needs at least one time",
-                                field="transient.times")
+            raise IllPosedError("transient.times needs at least one time", field="transient.times")
         prev = 0.0
         for n, t in enumerate(tr.times):
             _check_number(t, f"transient.times.{n}")
             if not t > prev:
-                raise IllPosedError("transient.times must be > 0 and strictly increasing",
-                                    field=f"transient.times.{n}")
+                raise IllPosedError(
+                    "transient.times must be > 0 and strictly increasing",
+                    field=f"transient.times.{n}",
+                )
             prev = t
         steps = _count_steps(tr.times, tr.time_step)
         if steps > p.max_time_steps:
-            raise TooLargeError(f"transient: {steps} time steps exceed the cap of "
-                                f"{p.max_time_steps}", field="transient.time_step")
+            raise TooLargeError(
+                f"transient: {steps} time steps exceed the cap of {p.max_time_steps}",
+                field="transient.time_step",
+            )
         for name in ("density", "specific_heat"):
             # the body's value is used wherever no zone gives one, so it is always needed
             if getattr(p, name) is None:
