@@ -37,6 +37,7 @@ from .grid_model import (
     Segment,
     Transient,
     Zone,
+    step_plan,
     validate,
 )
 from .grid_post import (
@@ -234,9 +235,15 @@ def _estimate_errors(
     problem: GridProblem, run: _Run, atol: float, points: _Array
 ) -> tuple[_Array, float, str]:
     """Richardson-style estimate: solve on a grid with every interval's cells doubled (or
-    halved when doubling would pass max_cells) and scale the difference for order 2."""
+    halved when doubling would pass max_cells or max_cell_steps) and scale the difference
+    for order 2."""
     bx, by, cx, cy = plan_mesh(problem, 2.0)
-    refine = sum(cx) * sum(cy) <= problem.max_cells
+    refined_cells = sum(cx) * sum(cy)
+    refine = refined_cells <= problem.max_cells
+    if problem.transient is not None:
+        tr = problem.transient
+        steps = sum(n for _, n, _ in step_plan(tr.times, tr.time_step))
+        refine = refine and steps * refined_cells <= problem.max_cell_steps
     other = _run(problem, 2.0 if refine else 0.5, atol)
     mesh = run.setup.mesh
     xx, yy = np.meshgrid(mesh.x, mesh.y)

@@ -617,6 +617,13 @@ def test_too_many_cells_rejected_before_allocation():
     assert info.value.field == "cells"
 
 
+def test_too_much_transient_work_rejected():
+    p = replace(_slab("backward_euler", 0.01, times=(1000.0,)), max_cell_steps=1_000_000)
+    with pytest.raises(TooLargeError) as info:
+        solve_grid(p)
+    assert info.value.field == "transient.time_step"
+
+
 def test_gap_between_segments_is_insulated_with_warning():
     p = GridProblem(
         width=0.4,
