@@ -104,9 +104,13 @@ def vertex_temperatures(
 
     Along each grid line through the vertex the two nearest face temperatures are interpolated
     (linearly in y; in x linearly, or in ln r for axisymmetric bodies). A vertex on an edge
-    takes the value along that edge. Elsewhere the line lying on a material interface is used
-    (its faces carry the flux-continuous values, whereas interpolating across the interface
-    would miss the kink in the profile); with no interface, or both, the mean of the two lines.
+    takes the value along that edge (or, where a material interface meets the edge, along the
+    interface, extrapolated to the edge). A corner of the domain takes the mean of the values
+    extrapolated along its two edges (no extrapolation across a material interface or towards
+    the axis), kept within the range of the faces used. Elsewhere the line lying on a material
+    interface is used (its faces carry the flux-continuous values, whereas interpolating
+    across the interface would miss the kink in the profile); with no interface, or both, the
+    mean of the two lines.
     """
     nx, ny = mesh.nx, mesh.ny
     xf, yf, xc, yc = mesh.x_faces, mesh.y_faces, mesh.x, mesh.y
@@ -114,31 +118,53 @@ def vertex_temperatures(
     jb = np.clip(j_f, 0, ny - 1)
     ia = np.clip(i_f - 1, 0, nx - 1)
     ib = np.clip(i_f, 0, nx - 1)
-    # along the vertical line x = xf[i_f]: x faces below (ja) and above (jb)
-    wy = np.where(jb > ja, (yf[j_f] - yc[ja]) / np.where(jb > ja, yc[jb] - yc[ja], 1.0), 0.0)
-    along_x = tx[ja, i_f] + wy * (tx[jb, i_f] - tx[ja, i_f])
-    # along the horizontal line y = yf[j_f]: y faces left (ia) and right (ib)
-    split = ib > ia
-    if mesh.geometry == "axisymmetric":
-        num = np.log(np.where(split, xf[i_f], xc[ia]) / xc[ia])
-        den = np.log(np.where(split, xc[ib], 2.0 * xc[ia]) / xc[ia])
-        wx = np.where(split, num / den, 0.0)
-    else:
-        wx = np.where(split, (xf[i_f] - xc[ia]) / np.where(split, xc[ib] - xc[ia], 1.0), 0.0)
-    along_y = ty[j_f, ia] + wx * (ty[j_f, ib] - ty[j_f, ia])
+    # rows whose x faces are interpolated along the vertical line x = xf[i_f]: the two either
+    # side of the vertex, or at the bottom/top edge the first two rows (extrapolation)
+    r0 = np.where(j_f == 0, 0, np.where(j_f == ny, max(ny - 2, 0), ja))
+    r1 = np.where(j_f == 0, min(1, ny - 1), np.where(j_f == ny, ny - 1, jb))
+    col = np.where(i_f == nx, nx - 1, ib)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        wy = np.where(r1 > r0, (yf[j_f] - yc[r0]) / np.where(r1 > r0, yc[r1] - yc[r0], 1.0), 0.0)
+    same_y = (ids[r0, col] == ids[r1, col]) & (ids[r0, ia] == ids[r1, ia])
+    wy = np.where(same_y, wy, np.clip(wy, 0.0, 1.0))
+    along_x = tx[r0, i_f] + wy * (tx[r1, i_f] - tx[r0, i_f])
+    # columns whose y faces are interpolated along the horizontal line y = yf[j_f]
+    c0 = np.where(i_f == 0, 0, np.where(i_f == nx, max(nx - 2, 0), ia))
+    c1 = np.where(i_f == 0, min(1, nx - 1), np.where(i_f == nx, nx - 1, ib))
+    row = np.where(j_f == ny, ny - 1, jb)
+    split = c1 > c0
+    with np.errstate(divide="ignore", invalid="ignore"):
+        if mesh.geometry == "axisymmetric":
+            ok = split & (xf[i_f] > 0.0)  # never extrapolate in ln r towards the axis
+            num = np.log(np.where(ok, xf[i_f], xc[c0]) / xc[c0])
+            den = np.log(np.where(ok, xc[c1], 2.0 * xc[c0]) / xc[c0])
+            wx = np.where(ok, num / den, 0.0)
+        else:
+            wx = np.where(split, (xf[i_f] - xc[c0]) / np.where(split, xc[c1] - xc[c0], 1.0), 0.0)
+    same_x = (ids[row, c0] == ids[row, c1]) & (ids[ja, c0] == ids[ja, c1])
+    wx = np.where(same_x, wx, np.clip(wx, 0.0, 1.0))
+    along_y = ty[j_f, c0] + wx * (ty[j_f, c1] - ty[j_f, c0])
     on_x_edge = (i_f == 0) | (i_f == nx)
     on_y_edge = (j_f == 0) | (j_f == ny)
-    # material interfaces through the vertex: a vertical one separates columns ia and ib,
-    # a horizontal one rows ja and jb
-    vertical = split & ((ids[ja, ia] != ids[ja, ib]) | (ids[jb, ia] != ids[jb, ib]))
+    faces = np.stack([tx[r0, i_f], tx[r1, i_f], ty[j_f, c0], ty[j_f, c1]])
+    corner = np.clip(0.5 * (along_x + along_y), faces.min(axis=0), faces.max(axis=0))
+    # material interfaces through an interior vertex: a vertical one separates columns ia
+    # and ib, a horizontal one rows ja and jb
+    vertical = (ib > ia) & ((ids[ja, ia] != ids[ja, ib]) | (ids[jb, ia] != ids[jb, ib]))
     horizontal = (jb > ja) & ((ids[ja, ia] != ids[jb, ia]) | (ids[ja, ib] != ids[jb, ib]))
     interior = np.where(
         vertical & ~horizontal,
         along_x,
         np.where(horizontal & ~vertical, along_y, 0.5 * (along_x + along_y)),
     )
+    # on an edge, the line along the edge unless a material interface meets the edge there:
+    # then the line along the interface (extrapolated to the edge)
+    x_edge = np.where(horizontal, along_y, along_x)
+    y_edge = np.where(vertical, along_x, along_y)
     return np.where(
-        on_x_edge & ~on_y_edge, along_x, np.where(on_y_edge & ~on_x_edge, along_y, interior)
+        on_x_edge & on_y_edge,
+        corner,
+        np.where(on_x_edge, x_edge, np.where(on_y_edge, y_edge, interior)),
     )
 
 

@@ -157,6 +157,53 @@ BOARD = GridProblem(
     atol=1e-9,
 )
 
+# --- a cold-store floor: insulation board under a concrete screed, insulated sides -----------
+# common practice, no source: one-dimensional series resistances (film, layers, film); the
+# points sit on corners and where the layer interface meets the sides, where interpolation is
+# hardest to keep exact
+_FLOOR_H, _FLOOR_SPLIT, _FLOOR_W = 0.0475, 0.0415, 0.5
+_FLOOR_K_INS, _FLOOR_K_SCREED, _FLOOR_H_IN, _FLOOR_H_OUT = 0.029, 1.15, 9.09, 16.67
+_floor_q = 20.0 / (
+    1 / _FLOOR_H_IN
+    + _FLOOR_SPLIT / _FLOOR_K_INS
+    + (_FLOOR_H - _FLOOR_SPLIT) / _FLOOR_K_SCREED
+    + 1 / _FLOOR_H_OUT
+)
+_floor_bottom = 20.0 - _floor_q / _FLOOR_H_IN
+FLOOR = GridProblem(
+    width=_FLOOR_W,
+    height=_FLOOR_H,
+    cells=Cells(20, 9),
+    conductivity=_FLOOR_K_INS,
+    zones=(
+        Zone(
+            "screed",
+            (0.0, _FLOOR_SPLIT, _FLOOR_W, _FLOOR_H),
+            conductivity=_FLOOR_K_SCREED,
+        ),
+    ),
+    edges=Edges(
+        bottom=(Segment("convection", film_coefficient=_FLOOR_H_IN, ambient=20.0),),
+        top=(Segment("convection", film_coefficient=_FLOOR_H_OUT, ambient=0.0),),
+        left=(Segment("insulated"),),
+        right=(Segment("insulated"),),
+    ),
+    points=(
+        (0.0, 0.0),
+        (_FLOOR_W, _FLOOR_H),
+        (0.0, _FLOOR_SPLIT),
+        (0.3, _FLOOR_SPLIT),
+        (_FLOOR_W, 0.03),
+    ),
+)
+_floor_expected = (
+    _floor_bottom,
+    _floor_q / _FLOOR_H_OUT,
+    _floor_bottom - _floor_q * _FLOOR_SPLIT / _FLOOR_K_INS,
+    _floor_bottom - _floor_q * _FLOOR_SPLIT / _FLOOR_K_INS,
+    _floor_bottom - _floor_q * 0.03 / _FLOOR_K_INS,
+)
+
 # --- NAFEMS thermal benchmark T4 ---------------------------------------------------------------
 # NAFEMS, "The Standard NAFEMS Benchmarks", test T4 (2D steady conduction with convection),
 # from memory: 0.6 m x 1.0 m, k = 52 W/(m K), bottom edge 100 degC, left edge insulated, right
@@ -257,6 +304,15 @@ CASES: tuple[ReferenceCase, ...] = (
         (_board_mid,),
         rtol=0.0,
         atol=0.05,
+    ),
+    ReferenceCase(
+        "cold-store-floor-corner-points",
+        "common practice, no source: series resistances",
+        FLOOR,
+        lambda r: r.point_temperatures,
+        _floor_expected,
+        rtol=1e-10,
+        atol=1e-10,
     ),
     ReferenceCase(
         "nafems-t4-point-e",
