@@ -196,8 +196,9 @@ class GridProblem:
         Solve again on a refined (or, near `max_cells`, coarsened) grid and report a
         Richardson-style error estimate.
     atol : float or None
-        Temperature tolerance of nonlinear and multigrid iterations, K; None: 1e-6 of the
-        largest temperature difference in the problem (at least 1e-9 K).
+        Temperature tolerance of the nonlinear (Picard) iteration, K; None: 1e-6 of the
+        largest temperature difference the problem names (boundary values, ambients,
+        surroundings, initial temperature), or 1e-6 K when it names none.
     max_iterations : int
         Nonlinear (Picard) iterations per steady solve or per time step.
     limits : Limits

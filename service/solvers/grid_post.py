@@ -179,7 +179,7 @@ def interpolate_points(
 
         T = T_P + f_x (T_x - T_P) + f_y (T_y - T_P) + f_x f_y (T_v - T_x - T_y + T_P)
 
-    with f_x linear in x (in ln r for axisymmetric radial faces, exact for radial conduction)
+    with f_x linear in x (in ln r for axisymmetric radial faces, exact for a source-free shell)
     and f_y linear in y. The cell holds one material and its face values are the
     flux-continuous ones, so the interpolation stays honest across zone boundaries.
     """

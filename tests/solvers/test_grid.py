@@ -10,6 +10,7 @@ from dataclasses import replace
 
 import numpy as np
 import pytest
+from scipy.integrate import solve_ivp
 from scipy.special import j0
 
 from service.solvers.errors import IllPosedError, TooLargeError
@@ -24,7 +25,7 @@ from service.solvers.grid import (
     solve_grid,
 )
 from service.solvers.grid_mesh import build_mesh, distribute
-from tests.solvers.reference_grid import CASES, slab_convection, slab_fixed_surface
+from tests.solvers.reference_grid import CASES, SIGMA, slab_convection, slab_fixed_surface
 
 
 def _profile(f, length: float, n: int = 4001) -> tuple[tuple[float, float], ...]:
@@ -502,6 +503,46 @@ def test_insulated_block_with_generation_ramp():
         rtol=1e-12,
         atol=0.0,
     )
+
+
+def test_radiating_copper_tab_against_lumped_ode():
+    # a small copper tab cooling by radiation alone (Biot number about 3e-3, so nearly
+    # uniform): rho c A dT/dt = -eps sigma P (T^4 - Tsur^4), integrated independently with
+    # scipy.integrate.solve_ivp (LSODA, rtol 1e-12); the lumped model itself is good to about
+    # Bi/3 of the temperature drop, hence the 0.5 K tolerance
+    eps, rho, c, side, t0, t_sur = 0.8, 8900.0, 385.0, 0.01, 800.0, 20.0
+    rad = (Segment("radiation", emissivity=eps, surroundings=t_sur),)
+    p = GridProblem(
+        width=side,
+        height=side,
+        cells=Cells(6, 6),
+        conductivity=400.0,
+        density=rho,
+        specific_heat=c,
+        edges=Edges(bottom=rad, top=rad, left=rad, right=rad),
+        transient=Transient(
+            initial_temperature=t0, times=(60.0, 300.0), time_step=4.0, scheme="crank_nicolson"
+        ),
+        points=((0.005, 0.005),),
+    )
+    r = solve_grid(p)
+    assert r.convergence.converged and r.convergence.iterations > 1
+
+    def rate(t, temp):
+        return (
+            -eps
+            * SIGMA
+            * 4
+            * side
+            * ((temp + 273.15) ** 4 - (t_sur + 273.15) ** 4)
+            / (rho * c * side * side)
+        )
+
+    sol = solve_ivp(
+        rate, (0.0, 300.0), [t0], t_eval=[60.0, 300.0], rtol=1e-12, atol=1e-12, method="LSODA"
+    )
+    np.testing.assert_allclose(r.transient.point_temperatures[:, 0], sol.y[0], rtol=0.0, atol=0.5)
+    assert float(r.transient.balance_error.max()) < 1e-9
 
 
 # --------------------------------------------------------------------------------------------
