@@ -64,6 +64,7 @@ from .grid_solve import (
     TransientRun,
     boundary_inflow,
     linear_solver_for,
+    multigrid_available,
     solve_steady_state,
     solve_time_steps,
     steady_residual,
@@ -342,6 +343,15 @@ def solve_grid(problem: GridProblem) -> GridResult:
             f"cells: the grid has {mesh.nx} x {mesh.ny} cells (asked "
             f"{problem.cells.nx} x {problem.cells.ny}) so that zone and segment "
             "boundaries fall on grid lines"
+        )
+    if (
+        run.cache.kind == "direct"
+        and not multigrid_available()
+        and (problem.linear_solver == "multigrid" or mesh.cells > DIRECT_MAX_CELLS)
+    ):
+        warnings.append(
+            "linear_solver: pyamg is not installed, so the sparse direct solver was used "
+            "(slower and more memory-hungry on large grids)"
         )
     points = np.asarray(problem.points, dtype=float).reshape(-1, 2)
     unit = "W/m" if problem.geometry == "planar" else "W"

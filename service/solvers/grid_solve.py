@@ -6,6 +6,7 @@ See `grid.solve_grid` for the equations; `grid_assembly` for the discrete terms.
 
 from __future__ import annotations
 
+import importlib.util
 from collections import OrderedDict
 from collections.abc import Callable
 from dataclasses import dataclass
@@ -85,12 +86,25 @@ class _Multigrid:
         return np.asarray(x), max(len(residuals) - 1, 0), bool(ok)
 
 
+def multigrid_available() -> bool:
+    """True when pyamg can be imported (checked without importing it)."""
+    return importlib.util.find_spec("pyamg") is not None
+
+
 def linear_solver_for(problem: GridProblem, cells: int) -> str:
-    """Choose ``direct`` or ``multigrid`` for `cells` unknowns (see DIRECT_MAX_CELLS)."""
-    if problem.linear_solver != "auto":
-        return problem.linear_solver
-    limit = DIRECT_MAX_CELLS if problem.transient is None else DIRECT_MAX_CELLS_TRANSIENT
-    return "direct" if cells <= limit else "multigrid"
+    """Choose ``direct`` or ``multigrid`` for `cells` unknowns (see DIRECT_MAX_CELLS).
+
+    Without pyamg installed every solve is direct (slower and hungrier above about 1e5
+    cells; `solve_grid` then warns).
+    """
+    if problem.linear_solver == "auto":
+        limit = DIRECT_MAX_CELLS if problem.transient is None else DIRECT_MAX_CELLS_TRANSIENT
+        choice = "direct" if cells <= limit else "multigrid"
+    else:
+        choice = problem.linear_solver
+    if choice == "multigrid" and not multigrid_available():
+        return "direct"
+    return choice
 
 
 class SolverCache:

@@ -325,6 +325,16 @@ def test_multigrid_agrees_with_direct():
     )
 
 
+def test_without_pyamg_falls_back_to_direct_with_warning(monkeypatch):
+    from service.solvers import grid, grid_solve
+
+    monkeypatch.setattr(grid_solve, "multigrid_available", lambda: False)
+    monkeypatch.setattr(grid, "multigrid_available", lambda: False)
+    r = solve_grid(_busy_problem(linear_solver="multigrid"))
+    assert r.linear_solver == "direct"
+    assert any("pyamg is not installed" in w for w in r.warnings)
+
+
 def test_forced_non_convergence_is_reported():
     table = ((0.0, 1.0), (500.0, 3.0))
     r = solve_grid(replace(_busy_problem(), conductivity=table, max_iterations=1))
