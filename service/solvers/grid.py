@@ -134,6 +134,8 @@ class GridResult:
     points : (n_points, 2) m
     point_temperatures : (n_points,) degC
     point_error_estimates : (n_points,) K, or None unless ``verify_mesh``
+        Richardson-style estimate of each point's discretisation error (transients: the
+        largest over the output times).
     edges : tuple of EdgeFlow, bottom, right, top, left
     energy_balance : EnergyBalance
     transient : TransientHistory or None (steady)
@@ -265,6 +267,8 @@ def _estimate_errors(
         + ("" if problem.transient is None else " (time-step error not included)")
     )
     n = points.shape[0]
+    if other.outcome.status != "converged":
+        how += f"; the {other.setup.mesh.cells}-cell solve ended {other.outcome.status}"
     return worst[:n], float(worst.max()) if worst.size else 0.0, how
 
 
