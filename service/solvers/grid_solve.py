@@ -32,9 +32,12 @@ from .grid_model import GridProblem, is_table, step_plan, table_at
 _Array = np.ndarray
 
 #: "auto" uses the sparse direct solver (splu) up to this many cells for a steady solve and
-#: Ruge-Stuben multigrid above (MEASURED.md: at 262k cells splu 1.3 s vs multigrid 0.7 s).
-DIRECT_MAX_CELLS = 150_000
-#: Transients reuse one factorisation for every step, so the direct solver pays off longer.
+#: Ruge-Stuben multigrid above. Measured with bench/grid.py (whole solve, median of 3):
+#: 22.5k cells 0.11 s direct vs 0.07 s multigrid, 90k 0.44 s vs 0.16 s; below about 20k the
+#: two are alike and the direct solve needs no iteration.
+DIRECT_MAX_CELLS = 20_000
+#: Transients reuse one factorisation for every step, so the direct solver pays off longer
+#: (measured: 20 steps on 302k cells, 4.2 s direct vs 7.5 s multigrid).
 DIRECT_MAX_CELLS_TRANSIENT = 300_000
 #: Relative residual (||b - A x|| / ||b||) asked of each multigrid solve.
 MULTIGRID_RTOL = 1e-10
