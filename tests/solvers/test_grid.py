@@ -572,9 +572,9 @@ def test_safety_zone_and_surface_limits():
     )
     assert r.hottest.temperature >= float(r.point_temperatures.max())
     surf = checks["max_surface_temperature"]
-    assert surf.where.position[0] == pytest.approx(0.3) or surf.where.position[1] == pytest.approx(
-        0.2
-    )
+    # the hottest exposed surface lies on the convecting right edge or the radiating top edge
+    x, y = surf.where.position
+    assert abs(x - 0.3) < 1e-12 or abs(y - 0.2) < 1e-12
 
 
 def test_transient_safety_reports_first_crossing():
@@ -594,7 +594,7 @@ def test_transient_safety_reports_first_crossing():
     check = r.safety.checks[0]
     assert check.status == "exceeded" and check.first_crossed_time is not None
     assert 0.0 < check.first_crossed_time < 60.0
-    assert check.where.position[0] == pytest.approx(0.02)
+    np.testing.assert_allclose(check.where.position[0], 0.02, rtol=0.0, atol=1e-12)
 
 
 # --------------------------------------------------------------------------------------------
