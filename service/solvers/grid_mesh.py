@@ -102,7 +102,7 @@ def distribute(breaks: Sequence[float], n: int) -> tuple[int, ...]:
     while counts.sum() < n:
         counts[np.argmax(lengths / counts)] += 1
     while counts.sum() > n:
-        widths = np.where(counts > 1, lengths / (counts - 1), np.inf)
+        widths = np.where(counts > 1, lengths / np.maximum(counts - 1, 1), np.inf)
         counts[np.argmin(widths)] -= 1
     return tuple(int(c) for c in counts)
 

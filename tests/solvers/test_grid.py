@@ -265,6 +265,8 @@ def test_distribute_keeps_total_and_one_cell_per_interval():
     counts = distribute((0.0, 0.001, 0.5, 1.0), 20)
     assert sum(counts) == 20 and min(counts) >= 1
     assert distribute((0.0, 0.1, 0.2, 0.3), 2) == (1, 1, 1)
+    # a short interval pinned at one cell while a long one gives cells back
+    assert distribute((0.0, 0.001, 0.002, 1.0), 4) == (1, 1, 2)
 
 
 # --------------------------------------------------------------------------------------------
