@@ -24,7 +24,14 @@ from service.solvers.grid import (
     Zone,
     solve_grid,
 )
+from service.solvers.grid_assembly import (
+    apply_matrix,
+    build_materials,
+    build_matrix,
+    interior_conductances,
+)
 from service.solvers.grid_mesh import build_mesh, distribute
+from service.solvers.grid_post import interpolate_points
 from tests.solvers.reference_grid import CASES, SIGMA, slab_convection, slab_fixed_surface
 
 
@@ -267,6 +274,54 @@ def test_distribute_keeps_total_and_one_cell_per_interval():
     assert distribute((0.0, 0.1, 0.2, 0.3), 2) == (1, 1, 1)
     # a short interval pinned at one cell while a long one gives cells back
     assert distribute((0.0, 0.001, 0.002, 1.0), 4) == (1, 1, 2)
+
+
+def test_matrix_is_symmetric_and_conserves_energy():
+    # stage 3 alone: interior conductances cancel in the column sums, so 1^T A = boundary
+    # coefficients (discrete conservation, common practice)
+    p = _busy_problem()
+    mesh = build_mesh(p)
+    k = build_materials(p, mesh).constant_k
+    gx, gy = interior_conductances(mesh, k)
+    extra = np.linspace(0.0, 1.0, mesh.cells).reshape(mesh.ny, mesh.nx)
+    a = build_matrix(mesh, gx, gy, extra)
+    np.testing.assert_allclose((a - a.T).toarray(), 0.0, rtol=0.0, atol=1e-12)
+    np.testing.assert_allclose(
+        np.asarray(a.sum(axis=0)).ravel(), extra.ravel(), rtol=0.0, atol=1e-9
+    )
+    field = np.cos(np.arange(mesh.cells)).reshape(mesh.ny, mesh.nx)
+    np.testing.assert_allclose(
+        apply_matrix(gx, gy, extra, field).ravel(), a @ field.ravel(), rtol=1e-12, atol=1e-12
+    )
+
+
+def test_point_interpolation_exact_for_a_linear_field():
+    # stage 5 alone: with face and vertex values of a linear field, bilinear interpolation
+    # within each cell quadrant reproduces it (common practice)
+    p = GridProblem(
+        width=0.3,
+        height=0.2,
+        cells=Cells(7, 5),
+        conductivity=1.0,
+        zones=(Zone("z", (0.1, 0.05, 0.2, 0.15)),),
+        edges=Edges(top=(Segment("temperature", value=0.0),)),
+    )
+    mesh = build_mesh(p)
+    ids = build_materials(p, mesh).ids
+
+    def f(x, y):
+        return 3.0 + 20.0 * x - 7.0 * y
+
+    temp = f(*np.meshgrid(mesh.x, mesh.y))
+    tx = f(*np.meshgrid(mesh.x_faces, mesh.y))
+    ty = f(*np.meshgrid(mesh.x, mesh.y_faces))
+    pts = np.array([[0.0, 0.0], [0.3, 0.2], [0.1, 0.05], [0.123, 0.077], [0.3, 0.11], [0.05, 0.2]])
+    np.testing.assert_allclose(
+        interpolate_points(mesh, ids, temp, tx, ty, pts),
+        f(pts[:, 0], pts[:, 1]),
+        rtol=0.0,
+        atol=1e-12,
+    )
 
 
 # --------------------------------------------------------------------------------------------
