@@ -236,7 +236,7 @@ def _run(problem: GridProblem, scale: float, atol: float) -> _Run:
 
 def _estimate_errors(
     problem: GridProblem, run: _Run, atol: float, points: _Array
-) -> tuple[_Array, float, str]:
+) -> tuple[_Array | None, float | None, str]:
     """Richardson-style estimate: solve on a grid with every interval's cells doubled (or
     halved when doubling would pass max_cells or max_cell_steps) and scale the difference
     for order 2."""
@@ -248,6 +248,15 @@ def _estimate_errors(
         steps = sum(n for _, n, _ in step_plan(tr.times, tr.time_step))
         refine = refine and steps * refined_cells <= problem.max_cell_steps
     other = _run(problem, 2.0 if refine else 0.5, atol)
+    if other.outcome.status == "non_finite" or not other.outputs:
+        return (
+            None,
+            None,
+            (
+                f"no estimate: the {other.setup.mesh.cells}-cell comparison solve produced a "
+                "non-finite field"
+            ),
+        )
     mesh = run.setup.mesh
     xx, yy = np.meshgrid(mesh.x, mesh.y)
     probes = np.vstack([points.reshape(-1, 2), np.column_stack([xx.ravel(), yy.ravel()])])
@@ -393,7 +402,7 @@ def solve_grid(problem: GridProblem) -> GridResult:
     error_estimate = None
     if problem.verify_mesh:
         point_err, error_estimate, how = _estimate_errors(problem, run, atol, points)
-        warnings_note = f"mesh error estimate from a {how}"
+        warnings_note = how if point_err is None else f"mesh error estimate from a {how}"
     else:
         warnings_note = ""
 
