@@ -395,33 +395,27 @@ def solve_surfaces(bf: BoundaryFaces, k_cells: _Array, temperature: _Array, time
 def build_matrix(mesh: Mesh, gx: _Array, gy: _Array, diagonal: _Array) -> sp.csr_matrix:
     """Stage 3c: the symmetric 5-point matrix, rows ordered p = j * nx + i.
 
-    Row P: (sum_nb G_Pnb + diagonal_P) T_P - sum_nb G_Pnb T_nb.
+    Row P: (sum_nb G_Pnb + diagonal_P) T_P - sum_nb G_Pnb T_nb. Built from its five diagonals
+    (the east/west ones hold zeros where a row of cells ends; conversion to CSR drops them),
+    about ten times faster at a million cells than from (row, column, value) triplets.
     """
     nx, ny = mesh.nx, mesh.ny
-    n = nx * ny
     ew = np.zeros((ny, nx + 1))  # conductance of each x face, boundary faces zero
     ew[:, 1:-1] = gx
     ns = np.zeros((ny + 1, nx))  # conductance of each y face
     ns[1:-1, :] = gy
     main = diagonal + ew[:, :-1] + ew[:, 1:] + ns[:-1, :] + ns[1:, :]
-    p = np.arange(n).reshape(ny, nx)
-    # five entries per row in column order: south, west, centre, east, north. The CSR arrays
-    # are built directly: a COO round trip costs several times more at a million cells.
-    vals = np.stack([-ns[:-1, :], -ew[:, :-1], main, -ew[:, 1:], -ns[1:, :]], axis=-1)
-    cols = np.stack([p - nx, p - 1, p, p + 1, p + nx], axis=-1)
-    exists = np.ones((ny, nx, 5), dtype=bool)
-    exists[0, :, 0] = False
-    exists[:, 0, 1] = False
-    exists[:, -1, 3] = False
-    exists[-1, :, 4] = False
-    keep = exists.reshape(n, 5)
-    indptr = np.zeros(n + 1, dtype=np.int64)
-    np.cumsum(keep.sum(axis=1), out=indptr[1:])
-    itype = np.int32 if 5 * n < 2**31 - 1 else np.int64
-    return sp.csr_matrix(
-        (vals.reshape(n, 5)[keep], cols.reshape(n, 5)[keep].astype(itype), indptr.astype(itype)),
-        shape=(n, n),
-    )
+    east = -ew[:, 1:].ravel()  # coupling of cell p with p + 1
+    north = -ns[1:, :].ravel()  # coupling of cell p with p + nx
+    diagonals = [main.ravel()]
+    offsets = [0]
+    if nx > 1:
+        diagonals += [east[:-1], east[:-1]]
+        offsets += [1, -1]
+    if ny > 1:
+        diagonals += [north[:-nx], north[:-nx]]
+        offsets += [nx, -nx]
+    return sp.diags(diagonals, offsets, format="csr")
 
 
 def apply_matrix(gx: _Array, gy: _Array, diagonal: _Array, temperature: _Array) -> _Array:
