@@ -7,6 +7,6 @@ from flask import Blueprint
 
 def blueprints() -> list[Blueprint]:
     """Every blueprint of the service; importing them registers the solve families."""
-    from service.api import batch, meta, plate, transient
+    from service.api import batch, fin, layers, meta, plate, transient
 
-    return [meta.bp, plate.bp, transient.bp, batch.bp]
+    return [meta.bp, plate.bp, layers.bp, fin.bp, transient.bp, batch.bp]
