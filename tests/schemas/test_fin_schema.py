@@ -42,6 +42,8 @@ RULES = [
     ({"width": -1}, "width", "at least 1e-06 m"),
     # material, film and temperatures
     ({"conductivity": 0}, "conductivity", "at least 0.001"),
+    ({"conductivity": 1e6}, "conductivity", "at most 100000"),
+    ({"film_coefficient": 0}, "film_coefficient", "at least 1e-06"),
     ({"film_coefficient": DELETE}, "film_coefficient", "required"),
     ({"film_coefficient": 2e6}, "film_coefficient", "at most 1e+06"),
     ({"base_temperature": "-300 degC"}, "base_temperature", "below absolute zero"),
@@ -55,10 +57,14 @@ RULES = [
     ({"tip": "insulated", "tip_film_coefficient": 10}, "tip_film_coefficient",
      "only with a convective tip"),
     ({"tip_film_coefficient": -1}, "tip_film_coefficient", "at least 0"),
+    ({"tip_film_coefficient": 2e6}, "tip_film_coefficient", "at most 1e+06"),
+    ({"tip": {"temperature": 2e4}}, "tip.temperature", "at most 10000 degC"),
     # arrays and profile
     ({"count": 0}, "count", "at least 1"),
     ({"count": 1.5}, "count", "Not an integer"),
+    ({"count": 10**8}, "count", "at most 10000000"),
     ({"base_area": -0.1}, "base_area", "at least 0"),
+    ({"base_area": 1e9}, "base_area", "at most 1e+08 m^2"),
     ({"profile_points": 1}, "profile_points", "at least 2"),
     ({"colour": "red"}, "colour", "Unknown field"),
 ]
