@@ -40,10 +40,12 @@ DEFAULT_UNITS: dict[str, str] = {
     "time": "s",
     "conductivity": "W/(m*K)",
     "conductivity_slope": "1/K",
+    "conductivity_temperature_slope": "W/(m*K^2)",
     "density": "kg/m^3",
     "specific_heat": "J/(kg*K)",
     "diffusivity": "m^2/s",
     "film_coefficient": "W/(m^2*K)",
+    "overall_coefficient": "W/(m^2*K)",
     "heat_flux": "W/m^2",
     "generation": "W/m^3",
     "heat_flow": "W",
@@ -55,6 +57,7 @@ DEFAULT_UNITS: dict[str, str] = {
     "thermal_resistance": "K/W",
     "resistance_per_length": "m*K/W",
     "speed": "m/s",
+    "reciprocal_length": "1/m",
 }
 
 _NUMBER = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*?)\s*$")

@@ -47,3 +47,36 @@ TRANSIENT_PAYLOAD: dict[str, Any] = {
 @pytest.fixture
 def transient_payload() -> dict[str, Any]:
     return copy.deepcopy(TRANSIENT_PAYLOAD)
+
+
+LAYERS_PAYLOAD: dict[str, Any] = {
+    # a thermal-oil line to a platen press: steel pipe lagged with mineral wool under a painted
+    # jacket (demo scenario, invented)
+    "geometry": "cylinder", "inner_radius": 0.0545, "length": 1.0,
+    "layers": [{"name": "pipe wall", "thickness": 0.004, "conductivity": 45},
+               {"name": "mineral wool", "thickness": 0.05, "conductivity": 0.04,
+                "max_temperature": 650}],
+    "contact_resistances": [0.0],
+    "inside": {"type": "convection", "film_coefficient": 1000, "ambient": 250},
+    "outside": {"type": "convection_radiation", "film_coefficient": 8, "ambient": 20,
+                "emissivity": 0.9, "surroundings": 20},
+    "limits": {"max_surface_temperature": 60},
+}
+
+
+@pytest.fixture
+def layers_payload() -> dict[str, Any]:
+    return copy.deepcopy(LAYERS_PAYLOAD)
+
+
+FIN_PAYLOAD: dict[str, Any] = {
+    # aluminium cooling fins cast on a gearbox housing (demo scenario, invented)
+    "shape": "straight", "length": 0.05, "thickness": 0.002, "width": 0.3,
+    "conductivity": 200, "film_coefficient": 25, "base_temperature": 100, "ambient": 25,
+    "tip": "convective", "count": 12, "base_area": 0.02,
+}
+
+
+@pytest.fixture
+def fin_payload() -> dict[str, Any]:
+    return copy.deepcopy(FIN_PAYLOAD)

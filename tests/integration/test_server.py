@@ -40,6 +40,30 @@ def test_transient_over_http(server):
     assert response.json()["results"]["target_time"] > 0
 
 
+def test_layers_over_http(server):
+    from tests.conftest import LAYERS_PAYLOAD
+
+    payload = {**LAYERS_PAYLOAD, "solve_for": {"layer": 1, "target": {"surface_temperature": 55}},
+               "output_units": {"length": "mm"}}
+    response = requests.post(server + "/v1/layers", json=payload, timeout=30)
+    assert response.status_code == 200, response.text
+    body = response.json()
+    assert body["kind"] == "layers" and body["units"]["length"] == "mm"
+    assert body["results"]["heat_flow_per_length"] > 0
+    assert 0 < body["results"]["solved"]["thickness"] < 50  # mm
+
+
+def test_fin_over_http(server):
+    from tests.conftest import FIN_PAYLOAD
+
+    response = requests.post(server + "/v1/fin", json=FIN_PAYLOAD, timeout=30)
+    assert response.status_code == 200, response.text
+    results = response.json()["results"]
+    assert 0 < results["efficiency"] < 1 and results["array"]["count"] == 12
+    response = requests.post(server + "/v1/fin", json={**FIN_PAYLOAD, "tip": "hot"}, timeout=30)
+    assert response.status_code == 422 and "tip" in response.json()["errors"]
+
+
 def test_problem_details_over_http(server):
     response = requests.post(server + "/v1/plate", data="{", timeout=5,
                              headers={"Content-Type": "application/json"})
