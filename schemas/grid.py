@@ -4,6 +4,7 @@ axisymmetric, with zones, edge segments, tables, steady or transient."""
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass, replace
 from typing import Any
 
 from marshmallow import (
@@ -23,7 +24,16 @@ from schemas.fields import Array, Integer, Number, Quantity
 from schemas.polymorphic import Polymorphic
 from schemas.units import DEFAULT_UNITS
 from service.solvers.errors import TooLargeError
-from service.solvers.grid import Cells, Edges, GridProblem, Segment, Transient, Zone
+from service.solvers.grid import (
+    DIRECT_MAX_CELLS_TRANSIENT,
+    Cells,
+    Edges,
+    GridProblem,
+    Segment,
+    Transient,
+    Zone,
+)
+from service.solvers.grid_mesh import plan_mesh
 from service.solvers.grid_model import EDGE_NAMES, GEOMETRIES, SCHEMES, step_plan
 from service.solvers.plate_grid import DEFAULT_CELLS, cells_for, linear_solver_for_cells
 
@@ -47,16 +57,19 @@ MAX_ITERATIONS = 1000
 MAX_ZONES = 50
 MAX_SEGMENTS = 20           # per edge
 MAX_NAME_LENGTH = 200
-#: A transient may take this many times the cell budget in cells x time steps (a time step
-#: costs about 0.2 us per cell with the reused factorisation and about 1 us with multigrid,
-#: measured with bench/grid.py, so the default budget bounds a run to roughly 2-10 s).
-CELL_STEPS_PER_CELL = 10
-#: Nonlinear problems (conductivity tables, radiation) solve a new linear system at every
-#: Picard iteration: cells x time steps x max_iterations, times 5 when verify_mesh refines
-#: (1.25 when it coarsens), may be at most this many times the cell budget. A linear solve
-#: costs about 3 us per cell at a million cells (multigrid, bench/grid.py), so the default
-#: budget bounds a nonlinear run to roughly 15-40 s.
-NONLINEAR_WORK_PER_CELL = 5
+# The work model that bounds a request's solver time (steady linear solves are bounded by the
+# cell budget alone: a million cells take about 4 s here). Measured through POST /v1/grid on
+# this 2-core machine: a time step with the reused sparse LU costs 0.1-0.3 us per cell, a
+# multigrid time step (above DIRECT_MAX_CELLS_TRANSIENT cells) 3.5-4.5 us, and a nonlinear
+# (Picard) iteration, which builds a new factorisation or hierarchy, about as much.
+#: Work units (about 0.3 us of solver time per cell) of one reused-LU time step per cell.
+UNITS_REUSED_STEP = 1.0
+#: Work units of one multigrid time step, or one Picard iteration, per cell.
+UNITS_NEW_SOLVE = 15.0
+#: A request may spend this many work units per cell of the cell budget (about 25 s at the
+#: default budget), its verify_mesh solve included; verify_mesh coarsens instead of refining
+#: when refining would not fit.
+WORK_UNITS_PER_CELL = 80
 DEFAULT_MAX_ITERATIONS = 200
 #: Largest ratio between the conductivities of one problem (body, zones, tables): measured on
 #: 1000 x 1000 cells, the multigrid solver converged in 11-16 cycles up to a ratio of 1e8 and
@@ -460,9 +473,7 @@ class GridRequestSchema(SolveRequestSchema):
     max_iterations = Integer(load_default=None, minimum=1, maximum=MAX_ITERATIONS, metadata={
         "description": f"Picard iterations per steady solve or per time step (conductivity "
                        f"tables and radiation). Default {DEFAULT_MAX_ITERATIONS}, or fewer "
-                       f"where the nonlinear work budget needs: cells x time steps x "
-                       f"max_iterations (x 5 with a verify_mesh refinement) at most "
-                       f"{NONLINEAR_WORK_PER_CELL} x the cell budget."})
+                       f"where the work budget needs (see the README)."})
 
     @pre_load
     def _refuse_oversized(self, data: Any, **kwargs: Any) -> Any:
@@ -500,10 +511,10 @@ class GridRequestSchema(SolveRequestSchema):
                 if steps > budgets.max_time_steps:
                     raise TooLargeError(f"transient: {steps} time steps asked, the limit is "
                                         f"{budgets.max_time_steps}", field="transient.time_step")
-                if steps * cells > max_cell_steps(budgets):
+                if steps * cells * UNITS_REUSED_STEP > work_budget(budgets):
                     raise TooLargeError(
                         f"transient: {steps} time steps on {cells} cells = {steps * cells:.3g} "
-                        f"cell-steps, the limit is {max_cell_steps(budgets):.3g}",
+                        f"cell-steps, beyond the work budget of {work_budget(budgets):.3g}",
                         field="transient.time_step")
         return data
 
@@ -558,14 +569,13 @@ class GridRequestSchema(SolveRequestSchema):
         budgets = CURRENT_BUDGETS.get()
         cells = data.get("cells") or cells_for(data["width"], data["height"],
                                                min(DEFAULT_CELLS, budgets.max_cells))
-        iterations = _max_iterations(data, cells, budgets)
         zones = tuple(
             Zone(name=zone.get("name") or f"zone {i}", region=tuple(zone["region"]),
                  conductivity=zone.get("conductivity"), generation=zone.get("generation"),
                  density=zone.get("density"), specific_heat=zone.get("specific_heat"),
                  max_temperature=zone.get("max_temperature"))
             for i, zone in enumerate(data["zones"]))
-        return GridProblem(
+        problem = GridProblem(
             width=data["width"], height=data["height"], cells=cells,
             conductivity=data["conductivity"], geometry=data["geometry"],
             density=data.get("density"), specific_heat=data.get("specific_heat"),
@@ -574,11 +584,18 @@ class GridRequestSchema(SolveRequestSchema):
             transient=data.get("transient"),
             points=tuple((float(x), float(y)) for x, y in data["points"]),
             output_grid=data["output_grid"], verify_mesh=data["verify_mesh"],
-            atol=data["tolerance"], max_iterations=iterations,
+            atol=data["tolerance"], max_iterations=DEFAULT_MAX_ITERATIONS,
             linear_solver=linear_solver_for_cells(cells),
             limits=data["limits"], max_cells=budgets.max_cells,
-            max_time_steps=budgets.max_time_steps, max_cell_steps=max_cell_steps(budgets),
+            max_time_steps=budgets.max_time_steps,
         )
+        if _cells_of(problem) > budgets.max_cells:
+            raise TooLargeError(
+                f"cells: the zone and segment boundaries need a grid of {_cells_of(problem)} "
+                f"cells, beyond the limit of {budgets.max_cells}", field="cells")
+        plan = plan_work(problem, data.get("max_iterations"), budgets)
+        return replace(problem, max_iterations=plan.max_iterations, max_cells=plan.max_cells,
+                       max_cell_steps=plan.max_cell_steps)
 
 
 def _conductivity_ratio(data: dict[str, Any]) -> float:
@@ -591,44 +608,102 @@ def _conductivity_ratio(data: dict[str, Any]) -> float:
     return max(values) / min(values) if values else 1.0
 
 
-def _nonlinear(data: dict[str, Any]) -> bool:
+def _nonlinear(problem: GridProblem) -> bool:
     """Conductivity tables or radiation: solved by Picard iteration."""
-    if any(is_table(k) for k in [data["conductivity"],
-                                  *(z.get("conductivity") for z in data["zones"])]):
+    if any(is_table(k) for k in [problem.conductivity, *(z.conductivity for z in problem.zones)]):
         return True
     return any(seg.type == "radiation" or (seg.type == "convection" and seg.emissivity)
-               for segments in data["edges"].values() for seg in segments)
+               for _, segments in problem.edges.named() for seg in segments)
 
 
-def _max_iterations(data: dict[str, Any], cells: Cells, budgets: Budgets) -> int:
-    """The Picard iteration cap: as asked, or the default within the nonlinear work budget;
-    413 when even one iteration would pass the budget or an explicit cap does."""
-    asked = data.get("max_iterations")
-    if not _nonlinear(data):
-        return asked or DEFAULT_MAX_ITERATIONS
-    n = cells.nx * cells.ny
-    transient = data.get("transient")
-    steps = sum(k for _, k, _ in step_plan(transient.times, transient.time_step)) \
-        if transient is not None else 1
-    verify = 1.0
-    if data["verify_mesh"]:
-        refines = 4 * n <= budgets.max_cells and 4 * n * steps <= max_cell_steps(budgets)
-        verify = 5.0 if refines else 1.25
-    budget = NONLINEAR_WORK_PER_CELL * budgets.max_cells
-    allowed = int(budget / (n * steps * verify))
-    limit = asked if asked is not None else min(DEFAULT_MAX_ITERATIONS, allowed)
-    if limit < 1 or limit > allowed:
-        raise TooLargeError(
-            f"max_iterations: a nonlinear problem (conductivity table or radiation) of {n} "
-            f"cells x {steps} time step(s){' with verify_mesh' if verify > 1 else ''} allows "
-            f"at most {allowed} Picard iterations within the work budget of {budget:.3g} "
-            f"cell-iterations; use fewer cells or time steps", field="max_iterations")
-    return limit
+@dataclass(frozen=True)
+class WorkPlan:
+    """Caps passed to the solver so that a request stays within its work budget."""
+
+    max_iterations: int
+    max_cells: int
+    max_cell_steps: int
 
 
-def max_cell_steps(budgets: Budgets) -> int:
-    """Cap on cells x time steps of a transient run."""
-    return CELL_STEPS_PER_CELL * budgets.max_cells
+def work_budget(budgets: Budgets) -> float:
+    """Work units one request may spend (see WORK_UNITS_PER_CELL)."""
+    return WORK_UNITS_PER_CELL * budgets.max_cells
+
+
+def _run_units(cells: int, steps: int, iterations: int, nonlinear: bool,
+               transient: bool) -> float:
+    """Work units of one solve of `cells` cells (0 for a steady linear solve)."""
+    if nonlinear:
+        return cells * steps * iterations * UNITS_NEW_SOLVE
+    if not transient:
+        return 0.0
+    reused = cells <= DIRECT_MAX_CELLS_TRANSIENT
+    return cells * steps * (UNITS_REUSED_STEP if reused else UNITS_NEW_SOLVE)
+
+
+def _cells_of(problem: GridProblem, scale: float = 1.0) -> int:
+    """Cells of the grid the solver will build (lines on zone and segment ends included)."""
+    _, _, cx, cy = plan_mesh(problem, scale)
+    return sum(cx) * sum(cy)
+
+
+def plan_work(problem: GridProblem, asked_iterations: int | None,
+              budgets: Budgets) -> WorkPlan:
+    """The Picard cap and the solver's cell caps: as asked where the work fits the budget, the
+    verification coarsened where refining would not fit, the default max_iterations lowered
+    where needed; 413 when even that cannot fit.
+
+    Work of a run: cells x time steps x units per cell-step (a reused-LU step 1, a multigrid
+    step 15), or for nonlinear problems cells x time steps x max_iterations x 15; steady linear
+    runs are bounded by the cell budget alone. verify_mesh adds a run on the refined grid (4 x
+    the cells) or the coarsened one.
+    """
+    n = _cells_of(problem)
+    tr = problem.transient
+    steps = sum(k for _, k, _ in step_plan(tr.times, tr.time_step)) if tr is not None else 1
+    nonlinear = _nonlinear(problem)
+    transient = tr is not None
+    budget = work_budget(budgets)
+    verify = problem.verify_mesh
+    refined = _cells_of(problem, 2.0) if verify else 0
+    coarse = _cells_of(problem, 0.5) if verify else 0
+
+    def total(iterations: int, refine: bool) -> float:
+        main = _run_units(n, steps, iterations, nonlinear, transient)
+        if not verify:
+            return main
+        other = refined if refine else coarse
+        return main + _run_units(other, steps, iterations, nonlinear, transient)
+
+    # the solver refines when the refined grid fits its caps; keep that only if the work fits
+    refine = verify and refined <= budgets.max_cells
+    if refine and total(asked_iterations or 1, True) > budget:
+        refine = False
+    if nonlinear:
+        per_iteration = total(1, refine)
+        allowed = int(budget // per_iteration)
+        limit = asked_iterations if asked_iterations is not None \
+            else min(DEFAULT_MAX_ITERATIONS, allowed)
+        if limit < 1 or limit > allowed:
+            raise TooLargeError(
+                f"max_iterations: a nonlinear problem (conductivity table or radiation) of {n} "
+                f"cells x {steps} time step(s){' with verify_mesh' if verify else ''} allows at "
+                f"most {allowed} Picard iterations within the work budget; use fewer cells or "
+                "time steps", field="max_iterations")
+    else:
+        limit = asked_iterations or DEFAULT_MAX_ITERATIONS
+        if total(1, refine) > budget:
+            raise TooLargeError(
+                f"transient: {steps} time steps on {n} cells exceed the work budget (a "
+                f"multigrid time step above {DIRECT_MAX_CELLS_TRANSIENT} cells costs about "
+                f"{UNITS_NEW_SOLVE:g} times a reused-factorisation step); use fewer cells or "
+                "time steps", field="transient.time_step")
+    # caps just below the refined grid make the solver coarsen the verification instead
+    max_cells = budgets.max_cells if refine or not verify else min(budgets.max_cells,
+                                                                   refined - 1)
+    max_cell_steps = max(n, refined if refine else refined - 1) * steps
+    return WorkPlan(max_iterations=limit, max_cells=max(max_cells, n),
+                    max_cell_steps=max_cell_steps)
 
 
 def _requested_cells(data: dict[str, Any], budgets: Budgets) -> int:

@@ -71,6 +71,8 @@ RULES = [
      "below absolute zero"),
     ({"conductivity": {"tabel": [[20, 1]]}}, "conductivity.tabel", "Unknown field"),
     ({"conductivity": True}, "conductivity", "Not a number"),
+    ({"conductivity": 1e-5, "zones.0.conductivity": 1e4}, "conductivity",
+     "span a ratio of 1e+09, beyond 1e+08"),
     ({"density": -1}, "density", "at least 0.001"),
     ({"specific_heat": 2e6}, "specific_heat", "at most 1e+06"),
     ({"generation": 1e14}, "generation", "at most 1e+13"),
@@ -171,16 +173,19 @@ def test_rule(changes, path, message):
 
 
 def test_valid_payload_builds_the_solver_problem():
-    problem = GridRequestSchema().load(copy.deepcopy(GRID_PAYLOAD)).problem
+    token = CURRENT_BUDGETS.set(Budgets())
+    try:
+        problem = GridRequestSchema().load(copy.deepcopy(GRID_PAYLOAD)).problem
+    finally:
+        CURRENT_BUDGETS.reset(token)
     assert problem.cells == Cells(30, 10)
     assert problem.zones[0] == Zone(name="steel stud", region=(0.14, 0.0, 0.16, 0.1),
                                     conductivity=50.0, max_temperature=80.0)
     assert problem.edges.bottom[1] == Segment("flux", start=0.2, end=0.3, value=40.0)
     assert problem.edges.top == (Segment("convection", film_coefficient=25.0, ambient=-25.0),)
     assert problem.transient is None and problem.points == ((0.0, 0.0), (0.15, 0.05))
-    budgets = CURRENT_BUDGETS.get()
-    assert problem.max_cells == budgets.max_cells
-    assert problem.max_time_steps == budgets.max_time_steps
+    assert problem.max_cells == Budgets().max_cells
+    assert problem.max_time_steps == Budgets().max_time_steps
 
 
 def test_transient_and_tables_load_in_default_units():
@@ -200,7 +205,11 @@ def test_transient_and_tables_load_in_default_units():
 
 def test_default_cells_are_nearly_square():
     payload = _payload({"cells": DELETE})
-    cells = GridRequestSchema().load(payload).problem.cells
+    token = CURRENT_BUDGETS.set(Budgets())
+    try:
+        cells = GridRequestSchema().load(payload).problem.cells
+    finally:
+        CURRENT_BUDGETS.reset(token)
     # 0.3 m x 0.1 m: about 40,000 cells three times as many along x (common practice, no source)
     assert cells.nx * cells.ny <= 40_000 and abs(cells.nx / cells.ny - 3.0) < 0.05
 
@@ -226,15 +235,66 @@ def _too_large(changes, budgets, match):
      "output_grid: 300 cells x 2 output times"),
     ({**_transient(), "transient.time_step": 1e-3}, Budgets(), "600000 time steps"),
     ({**_transient(), "transient.time_step": "0.05 s"}, Budgets(max_cells=300),
-     "cell-steps, the limit is 3e"),
+     "cell-steps, beyond the work budget of 2.4e"),
+    ({**_transient(), "cells": {"nx": 30, "ny": 20}}, Budgets(max_cells=600),
+     None),
+    # above 300,000 cells a time step is a multigrid solve, priced 15 times a reused LU step
+    ({**_transient(), "cells": {"nx": 800, "ny": 500}, "transient.times": [600]},
+     Budgets(max_cells=400_000), "20 time steps on 400000 cells exceed the work budget"),
 ])
 def test_budgets_refused_before_parsing(changes, budgets, match):
-    if match is None:  # the default grid shrinks to the budget instead of failing
+    if match is None:  # within the budget: the grid fits it
         token = CURRENT_BUDGETS.set(budgets)
         try:
             cells = GridRequestSchema().load(_payload(changes)).problem.cells
         finally:
             CURRENT_BUDGETS.reset(token)
-        assert cells.nx * cells.ny <= 100
+        assert cells.nx * cells.ny <= budgets.max_cells
         return
     _too_large(changes, budgets, match)
+
+
+def test_nonlinear_work_budget_sets_or_refuses_max_iterations():
+    table = {"table": [[0, 0.02], [100, 0.03]]}
+    token = CURRENT_BUDGETS.set(Budgets(max_cells=300))
+    try:
+        # 300 cells, steady: 5 x 300 cell-iterations allow 5 Picard iterations by default
+        problem = GridRequestSchema().load(_payload({"conductivity": table})).problem
+        assert problem.max_iterations == 5
+        with pytest.raises(TooLargeError, match="at most 5 Picard iterations"):
+            GridRequestSchema().load(_payload({"conductivity": table, "max_iterations": 6}))
+        # a linear problem keeps the default whatever its size
+        assert GridRequestSchema().load(_payload({})).problem.max_iterations == 200
+    finally:
+        CURRENT_BUDGETS.reset(token)
+
+
+def test_thin_grids_are_solved_directly():
+    token = CURRENT_BUDGETS.set(Budgets())
+    try:
+        thin = GridRequestSchema().load(_payload({"cells": {"nx": 3000, "ny": 2}})).problem
+        wide = GridRequestSchema().load(_payload({"cells": {"nx": 300, "ny": 100}})).problem
+    finally:
+        CURRENT_BUDGETS.reset(token)
+    assert thin.linear_solver == "direct" and wide.linear_solver == "auto"
+
+
+def test_work_plan_coarsens_the_verification_that_would_not_fit():
+    from service.solvers.methods import solve_grid_method
+
+    table = {"table": [[-50, 0.02], [100, 0.03]]}
+    token = CURRENT_BUDGETS.set(Budgets(max_cells=2000))
+    try:
+        # nonlinear, 300 cells: refining (1200 cells) x 10 iterations would pass the work
+        # budget of 80 x 2000 units (15 per cell-iteration), coarsening fits
+        problem = GridRequestSchema().load(_payload({
+            "conductivity": table, "verify_mesh": True, "max_iterations": 10})).problem
+        assert problem.max_cells < 1200 and problem.max_iterations == 10
+        result = solve_grid_method(problem)
+        assert "coarsened grid" in result.convergence.message
+        # without an explicit cap the default fits the refined verification instead
+        problem = GridRequestSchema().load(_payload({"conductivity": table,
+                                                      "verify_mesh": True})).problem
+        assert problem.max_cells == 2000 and problem.max_iterations == 160_000 // (1500 * 15)
+    finally:
+        CURRENT_BUDGETS.reset(token)
