@@ -66,6 +66,10 @@ MAX_NAME_LENGTH = 200
 UNITS_REUSED_STEP = 1.0
 #: Work units of one multigrid time step, or one Picard iteration, per cell.
 UNITS_NEW_SOLVE = 15.0
+#: Every solve costs at least as much as one of this many cells: the fixed overheads of a time
+#: step (measured 0.2 ms per reused-LU step on a 9-cell grid) and of a Picard iteration with
+#: radiating surfaces (up to 4 ms measured at 9 cells with extreme temperatures).
+MIN_SOLVE_CELLS = 1000
 #: A request may spend this many work units per cell of the cell budget (about 25 s at the
 #: default budget), its verify_mesh solve included; verify_mesh coarsens instead of refining
 #: when refining would not fit.
@@ -633,12 +637,13 @@ def work_budget(budgets: Budgets) -> float:
 def _run_units(cells: int, steps: int, iterations: int, nonlinear: bool,
                transient: bool) -> float:
     """Work units of one solve of `cells` cells (0 for a steady linear solve)."""
+    priced = max(cells, MIN_SOLVE_CELLS)
     if nonlinear:
-        return cells * steps * iterations * UNITS_NEW_SOLVE
+        return priced * steps * iterations * UNITS_NEW_SOLVE
     if not transient:
         return 0.0
     reused = cells <= DIRECT_MAX_CELLS_TRANSIENT
-    return cells * steps * (UNITS_REUSED_STEP if reused else UNITS_NEW_SOLVE)
+    return priced * steps * (UNITS_REUSED_STEP if reused else UNITS_NEW_SOLVE)
 
 
 def _cells_of(problem: GridProblem, scale: float = 1.0) -> int:
@@ -653,8 +658,9 @@ def plan_work(problem: GridProblem, asked_iterations: int | None,
     verification coarsened where refining would not fit, the default max_iterations lowered
     where needed; 413 when even that cannot fit.
 
-    Work of a run: cells x time steps x units per cell-step (a reused-LU step 1, a multigrid
-    step 15), or for nonlinear problems cells x time steps x max_iterations x 15; steady linear
+    Work of a run: cells (at least MIN_SOLVE_CELLS) x time steps x units per cell-step (a
+    reused-LU step 1, a multigrid step 15), or for nonlinear problems the same with
+    max_iterations x 15 units per cell-step; steady linear
     runs are bounded by the cell budget alone. verify_mesh adds a run on the refined grid (4 x
     the cells) or the coarsened one.
     """

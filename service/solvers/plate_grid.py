@@ -46,6 +46,12 @@ REFINE_MARGIN = 1.5
 #: nearly one-dimensional grids (bench figures in the grid-api report: 40,000 x 1 cells took
 #: 8.5 s by multigrid and 0.14 s direct).
 THIN_GRID = 32
+#: The plate's grid solves use the sparse direct solver whenever their largest run (the
+#: verification included) has at most this many cells: its time does not depend on how well
+#: conditioned the equations are (about 1.3 s at 260,000 cells, MEASURED.md), whereas
+#: multigrid was measured to spend all its 200 cycles (about 35 s at a million cells) where
+#: round-off keeps it from its residual target, e.g. on tall grids with extreme properties.
+PLATE_DIRECT_CELLS = 300_000
 #: Corner temperatures closer than this (relative to the largest magnitude, at least 1 K)
 #: count as equal: no singular corner.
 CORNER_RTOL = 1e-9
@@ -109,21 +115,17 @@ def cells_for(width: float, height: float, total: int) -> Cells:
     return Cells(nx, ny)
 
 
-def refined_cells(cells: Cells, error: float, atol: float, max_cells: int) -> Cells | None:
+def refined_cells(cells: Cells, error: float, atol: float, cap: int) -> Cells | None:
     """Cells that should bring a second-order error estimate `error` (K) below `atol` (K).
 
     The error of a second-order scheme scales with h^2, i.e. with 1 / cells in 2D, so the
-    count grows by ``REFINE_MARGIN * error / atol``; capped so that the grid and its
-    verification refinement (4 times the cells) stay within `max_cells` where possible.
-    Returns None when no larger grid fits.
+    count grows by ``REFINE_MARGIN * error / atol``, at most to `cap` cells. Returns None when
+    no grid larger by a fifth fits.
     """
     if not (math.isfinite(error) and error > atol > 0.0):
         return None
     n = cells.nx * cells.ny
     want = n * REFINE_MARGIN * error / atol
-    # the verification solve doubles every interval: keep it inside the cap when that still
-    # gives more cells than now, otherwise accept that verification coarsens instead
-    cap = max_cells // 4 if max_cells // 4 > n else max_cells
     target = min(want, cap)
     if target <= 1.2 * n:
         return None
@@ -141,6 +143,17 @@ def refined_cells(cells: Cells, error: float, atol: float, max_cells: int) -> Ce
 def linear_solver_for_cells(cells: Cells) -> str:
     """``direct`` for thin grids (at most THIN_GRID cells across), else ``auto``."""
     return "direct" if min(cells.nx, cells.ny) <= THIN_GRID else "auto"
+
+
+def plate_linear_solver(cells: Cells, max_cells: int) -> str:
+    """``direct`` for thin grids and wherever the largest run (a verification refines to 4 x
+    the cells when that fits `max_cells`) has at most PLATE_DIRECT_CELLS cells, else
+    ``auto``."""
+    n = cells.nx * cells.ny
+    largest = 4 * n if 4 * n <= max_cells else n
+    if largest <= PLATE_DIRECT_CELLS:
+        return "direct"
+    return linear_solver_for_cells(cells)
 
 
 # --------------------------------------------------------------------------------------------
@@ -199,7 +212,7 @@ def plate_to_grid(
         atol=problem.atol,
         limits=problem.limits,
         max_cells=max_cells,
-        linear_solver=linear_solver_for_cells(cells),
+        linear_solver=plate_linear_solver(cells, max_cells),
     )
 
 
@@ -401,7 +414,8 @@ def run_plate_grid(
     cells : Cells or None
         A fixed grid; None chooses `initial_cells` nearly square cells (at most a quarter of
         `max_cells`, so that the verification can refine) and, when ``problem.atol`` is given
-        and the mesh error estimate exceeds it, one larger grid.
+        and the mesh error estimate exceeds it, one larger grid (at most PLATE_DIRECT_CELLS
+        cells, verified by coarsening).
     extra_points : (m, 2) array or None
         More points at which to report grid temperatures (m), e.g. for a cross-check.
     initial_cells : int
@@ -419,10 +433,14 @@ def run_plate_grid(
     )
     estimate = grid.convergence.error_estimate
     if cells is None and problem.atol is not None and estimate is not None:
-        finer = refined_cells(chosen, estimate, problem.atol, max_cells)
+        finer = refined_cells(chosen, estimate, problem.atol,
+                              min(max_cells, PLATE_DIRECT_CELLS))
         if finer is not None and grid.convergence.converged:
+            # its verification coarsens (cap below 4 x its cells): the estimate then comes
+            # from a grid near the first one, and the run stays a direct solve
+            cap = min(max_cells, 3 * finer.nx * finer.ny)
             grid = solve_grid_checked(
-                plate_to_grid(problem, finer, max_cells=max_cells, extra_points=extra)
+                plate_to_grid(problem, finer, max_cells=cap, extra_points=extra)
             )
     n_known = len(problem.points) + len(output_grid_points(problem))
     temps, errs = _exact_where_known(problem, grid)

@@ -256,15 +256,23 @@ def test_budgets_refused_before_parsing(changes, budgets, match):
 
 def test_nonlinear_work_budget_sets_or_refuses_max_iterations():
     table = {"table": [[0, 0.02], [100, 0.03]]}
-    token = CURRENT_BUDGETS.set(Budgets(max_cells=300))
+    cells = {"nx": 60, "ny": 40}
+    token = CURRENT_BUDGETS.set(Budgets(max_cells=2400))
     try:
-        # 300 cells, steady: 5 x 300 cell-iterations allow 5 Picard iterations by default
-        problem = GridRequestSchema().load(_payload({"conductivity": table})).problem
+        # 2400 cells, steady: 80 x 2400 units at 15 per cell-iteration allow 5 iterations
+        problem = GridRequestSchema().load(_payload({"conductivity": table,
+                                                      "cells": cells})).problem
         assert problem.max_iterations == 5
         with pytest.raises(TooLargeError, match="at most 5 Picard iterations"):
-            GridRequestSchema().load(_payload({"conductivity": table, "max_iterations": 6}))
+            GridRequestSchema().load(_payload({"conductivity": table, "cells": cells,
+                                               "max_iterations": 6}))
         # a linear problem keeps the default whatever its size
-        assert GridRequestSchema().load(_payload({})).problem.max_iterations == 200
+        assert GridRequestSchema().load(_payload({"cells": cells})).problem \
+            .max_iterations == 200
+        # a tiny grid is priced as 1000 cells (fixed costs per solve)
+        tiny = GridRequestSchema().load(_payload({"conductivity": table,
+                                                   "cells": {"nx": 3, "ny": 3}})).problem
+        assert tiny.max_iterations == 80 * 2400 // (1000 * 15)
     finally:
         CURRENT_BUDGETS.reset(token)
 
@@ -283,18 +291,21 @@ def test_work_plan_coarsens_the_verification_that_would_not_fit():
     from service.solvers.methods import solve_grid_method
 
     table = {"table": [[-50, 0.02], [100, 0.03]]}
-    token = CURRENT_BUDGETS.set(Budgets(max_cells=2000))
+    cells = {"nx": 60, "ny": 40}
+    token = CURRENT_BUDGETS.set(Budgets(max_cells=20_000))
     try:
-        # nonlinear, 300 cells: refining (1200 cells) x 10 iterations would pass the work
-        # budget of 80 x 2000 units (15 per cell-iteration), coarsening fits
+        # nonlinear, 2400 cells: the refined verification (9600 cells) x 10 iterations would
+        # pass the work budget of 80 x 20,000 units (15 per cell-iteration); coarsening fits
         problem = GridRequestSchema().load(_payload({
-            "conductivity": table, "verify_mesh": True, "max_iterations": 10})).problem
-        assert problem.max_cells < 1200 and problem.max_iterations == 10
+            "conductivity": table, "cells": cells, "verify_mesh": True,
+            "max_iterations": 10})).problem
+        assert problem.max_cells < 9600 and problem.max_iterations == 10
         result = solve_grid_method(problem)
         assert "coarsened grid" in result.convergence.message
         # without an explicit cap the default fits the refined verification instead
-        problem = GridRequestSchema().load(_payload({"conductivity": table,
+        problem = GridRequestSchema().load(_payload({"conductivity": table, "cells": cells,
                                                       "verify_mesh": True})).problem
-        assert problem.max_cells == 2000 and problem.max_iterations == 160_000 // (1500 * 15)
+        assert problem.max_cells == 20_000
+        assert problem.max_iterations == 80 * 20_000 // ((2400 + 9600) * 15)
     finally:
         CURRENT_BUDGETS.reset(token)
