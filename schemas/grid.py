@@ -388,11 +388,14 @@ class GridTransientSchema(BaseSchema):
 Point = fields.Tuple((Quantity("length", **POSITION), Quantity("length", **POSITION)))
 
 
+_RAW_FIELDS = {"time": Quantity("time")}
+
+
 def _try(kind: str, value: Any) -> float | None:
     """A number from a raw request value (number or "value unit"), or None when it is not one
     (validation reports it later)."""
     try:
-        return Quantity(kind).deserialize(value)
+        return _RAW_FIELDS[kind].deserialize(value)  # type: ignore[no-any-return]
     except ValidationError:
         return None
 
