@@ -157,7 +157,8 @@ def run_solve(family: Family, payload: Any) -> dict[str, Any]:
     convergence = result.convergence
     if not convergence.converged:
         diagnostics = dump_with_units(CONVERGENCE_SCHEMA, convergence, units)
-        if not solve_request.accept_unconverged:
+        # a non-finite result has nothing trustworthy to return, whatever the caller accepts
+        if not solve_request.accept_unconverged or convergence.status == "non_finite":
             raise ProblemError("/problems/not-converged",
                                f"{convergence.message} Set accept_unconverged to true to receive "
                                "the result anyway.", diagnostics=diagnostics)
