@@ -6,6 +6,8 @@ Bounded: a fixed number of examples per operation, loopback only. Checks: no ser
 
 from __future__ import annotations
 
+import os
+
 import pytest
 import schemathesis
 from hypothesis import HealthCheck, given, settings
@@ -15,7 +17,8 @@ from schemathesis.specs.openapi.checks import (
     status_code_conformance,
 )
 
-EXAMPLES = 25
+#: examples per operation: 25 in the suite, more with `make fuzz`
+EXAMPLES = int(os.environ.get("CONDUCTION_FUZZ_EXAMPLES", "25"))
 CHECKS = (not_a_server_error, response_schema_conformance, status_code_conformance)
 
 
