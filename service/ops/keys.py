@@ -149,7 +149,7 @@ def install(app: Flask) -> None:
     def _strip_query_key() -> None:
         """Hide `api_key` from the views: query schemas reject unknown parameters, and a
         spreadsheet template may carry the key whether or not this deployment checks it."""
-        if QUERY_PARAMETER in request.args:
+        if request.query_string and QUERY_PARAMETER in request.args:
             request.args = ImmutableMultiDict(  # type: ignore[misc]
                 [(k, v) for k, v in request.args.items(multi=True) if k != QUERY_PARAMETER])
 
@@ -186,7 +186,7 @@ def install(app: Flask) -> None:
             presented = token.strip()
         elif request.headers.get("X-API-Key"):
             presented = request.headers["X-API-Key"].strip()
-        elif QUERY_PARAMETER in request.args:
+        elif request.query_string and QUERY_PARAMETER in request.args:
             if not allow_query or request.method not in QUERY_METHODS:
                 where = ("on GET requests only" if allow_query
                          else "by this deployment")

@@ -10,8 +10,9 @@ problem and possibly an `api_key` there), headers, API keys. As a second line of
 formatter masks `api_key=...` values, bearer tokens and query strings in any message, including
 gunicorn's own (see `redact`).
 
-This module uses the standard library only at import time: gunicorn's master process imports
-`JsonFormatter` through `logconfig_dict` (deploy/gunicorn.conf.py).
+gunicorn's master process imports `JsonFormatter` through `logconfig_dict`
+(deploy/gunicorn.conf.py), so this module imports only the standard library (and orjson when
+present) and nothing of Flask or prometheus-client.
 """
 
 from __future__ import annotations
@@ -51,11 +52,30 @@ _REDACTIONS = (
 )
 
 
+_TRIGGERS = ("?", "api_key", "bearer", "x-api-key")
+
+
 def redact(text: str) -> str:
     """Mask API keys, bearer tokens and query strings in a log message."""
+    lowered = text.lower()
+    if not any(trigger in lowered for trigger in _TRIGGERS):
+        return text  # the common case, without running the patterns
     for pattern, replacement in _REDACTIONS:
         text = pattern.sub(replacement, text)
     return text
+
+
+def _dumps(entry: dict[str, Any]) -> str:
+    return json.dumps(entry, default=str)
+
+
+try:  # orjson (a service dependency) is about 15 times faster; the standard library will do
+    import orjson
+
+    def _dumps(entry: dict[str, Any]) -> str:  # noqa: F811 - the faster twin
+        return orjson.dumps(entry, default=str).decode()
+except ImportError:  # pragma: no cover - orjson is installed with the service
+    pass
 
 
 class JsonFormatter(logging.Formatter):
@@ -81,7 +101,7 @@ class JsonFormatter(logging.Formatter):
                     entry[key] = value
         if record.exc_info:
             entry["exception"] = redact(self.formatException(record.exc_info))
-        return json.dumps(entry, default=str)
+        return _dumps(entry)
 
 
 class StdoutHandler(logging.Handler):
@@ -141,8 +161,9 @@ def install(app: Flask) -> None:
     @app.after_request
     def _echo_and_log(response: Response) -> Response:
         response.headers[REQUEST_ID_HEADER] = getattr(g, "request_id", "")
-        if log_requests:
-            route = request.url_rule.rule if request.url_rule is not None else "unmatched"
+        route = request.url_rule.rule if request.url_rule is not None else "unmatched"
+        level = logging.DEBUG if route in QUIET_ROUTES else logging.INFO
+        if log_requests and request_log.isEnabledFor(level):
             fields: dict[str, Any] = {
                 "event": "request", "method": request.method, "route": route,
                 "path": request.path, "status": response.status_code,
@@ -154,7 +175,6 @@ def install(app: Flask) -> None:
             client = g.get("api_client")
             if client:
                 fields["client"] = client
-            level = logging.DEBUG if route in QUIET_ROUTES else logging.INFO
             request_log.log(level, "%s %s %d", request.method, request.path,
                             response.status_code, extra={"fields": fields})
         return response

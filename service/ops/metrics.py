@@ -93,8 +93,12 @@ BUILD_INFO = Gauge(
     multiprocess_mode="max")
 
 
+#: Decided once, at import, as prometheus-client decides where its samples live.
+_MULTIPROCESS = bool(os.environ.get(MULTIPROCESS_ENV))
+
+
 def multiprocess_enabled() -> bool:
-    return bool(os.environ.get(MULTIPROCESS_ENV))
+    return _MULTIPROCESS
 
 
 def observe_solve(kind: str, method: str, convergence: Convergence, seconds: float) -> None:
