@@ -6,7 +6,7 @@ VENV := .venv
 BIN := $(VENV)/bin
 STAMP := $(VENV)/.installed
 
-.PHONY: serve test venv openapi bench lint clean
+.PHONY: serve test venv openapi bench verify lint clean
 
 $(BIN)/python:
 	$(PYTHON) -m venv $(VENV)
@@ -29,6 +29,9 @@ openapi: $(STAMP)
 
 bench: $(STAMP)
 	@for script in bench/*.py; do echo "== $$script"; $(BIN)/python $$script || exit 1; done
+
+verify: $(STAMP)
+	$(BIN)/python -m service.api.verification
 
 lint: $(STAMP)
 	$(BIN)/python -m pip install --quiet -e '.[test,dev]'

@@ -1,9 +1,8 @@
 """Post a plate problem and print the result.
 
-Scenario (invented for this example): the cast-aluminium cover of a gearbox oil sump is heated
-from below by 85 degC oil, cooled by air on one side and insulated on the other, with a small
-heat loss through the top. What is the centre temperature, and does the top stay below a
-60 degC touch limit?
+Scenario (invented for this example): the thick stainless-steel cover of a gearbox oil sump is
+heated from below by 85 degC oil, insulated on one side and cooled by a fan on the other side
+and on top. What is the centre temperature, and does the top stay below a 60 degC touch limit?
 
     python client_examples/plate_client.py --url http://127.0.0.1:8000
 """
@@ -19,12 +18,12 @@ import requests
 PROBLEM = {
     "width": "400 mm",
     "height": "250 mm",
-    "conductivity": 160,
+    "conductivity": 16,
     "edges": {
         "bottom": {"type": "temperature", "value": 85},
         "left": {"type": "insulated"},
-        "right": {"type": "convection", "film_coefficient": 12, "ambient": 25},
-        "top": {"type": "convection", "film_coefficient": 8, "ambient": 25},
+        "right": {"type": "convection", "film_coefficient": 60, "ambient": 25},
+        "top": {"type": "convection", "film_coefficient": 40, "ambient": 25},
     },
     "points": [["200 mm", "125 mm"], ["200 mm", "250 mm"]],
     "limits": {"max_surface_temperature": 60},

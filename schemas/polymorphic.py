@@ -17,6 +17,7 @@ class Polymorphic(fields.Field):
     def __init__(self, choices: Mapping[str, type[Schema]], **kwargs: Any) -> None:
         super().__init__(**kwargs)
         self.choices = choices
+        self._instances: dict[str, Schema] = {}
 
     def _deserialize(self, value: Any, attr: str | None, data: Any, **kwargs: Any) -> Any:
         if not isinstance(value, dict):
@@ -24,4 +25,6 @@ class Polymorphic(fields.Field):
         kind = value.get("type")
         if not isinstance(kind, str) or kind not in self.choices:
             raise ValidationError({"type": [f"Must be one of: {', '.join(self.choices)}."]})
-        return self.choices[kind]().load(value)
+        if kind not in self._instances:
+            self._instances[kind] = self.choices[kind]()
+        return self._instances[kind].load(value)

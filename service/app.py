@@ -10,6 +10,7 @@ from typing import Any
 from flask import Flask
 
 from service.config import budgets_from, load_config
+from service.cors import install_cors
 from service.jsonio import OrjsonProvider
 from service.ops import install_ops
 from service.ops.logs import REQUEST_ID_HEADER  # noqa: F401 - re-exported
@@ -26,7 +27,7 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
     app.config["MAX_CONTENT_LENGTH"] = int(settings["MAX_BODY_BYTES"])
     logging.getLogger("service").setLevel(settings["LOG_LEVEL"])
 
-    from service.api import blueprints, meta
+    from service.api import blueprints, meta, verification
     from service.openapi import build_spec
 
     for blueprint in blueprints():
@@ -37,8 +38,10 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
         "budgets": budgets_from(settings),
         "openapi": spec,
         "docs": functools.cache(lambda: meta.render_docs(spec())),
+        "verification": functools.cache(verification.report),
     }
     register_error_handlers(app)
+    install_cors(app, settings["CORS_ORIGINS"])
     # request IDs and JSON logs, API keys, readiness, time budget, metrics (service/ops/)
     install_ops(app)
     return app

@@ -27,6 +27,7 @@ DEFAULTS: dict[str, Any] = {
     "METRICS_REQUIRE_KEY": False,  # /metrics needs a key too (when keys are on)
     "TIME_BUDGET_SECONDS": 25.0,   # per-request time budget, 0 = off (413 beyond it)
     "DRAIN_FILE": "",              # set by deploy/gunicorn.conf.py: exists while draining
+    "CORS_ORIGINS": "",            # comma-separated allowed origins for browsers; "*" for any
     **{f.name.upper(): f.default for f in fields(Budgets)},
 }
 

@@ -127,13 +127,39 @@ def build_spec() -> dict[str, Any]:
             "summary": family.summary,
             "operationId": f"solve_{kind}",
             "requestBody": {"required": True, "content": {
-                "application/json": {"schema": family.request_schema}}},
+                "application/json": {"schema": type(family.request_schema)}}},
             "responses": {
                 "200": {"description": "Solved", "content": {
-                    "application/json": {"schema": family.response_schema}}},
+                    "application/json": {"schema": type(family.response_schema)}}},
                 **_problem_responses(400, 413, 415, 422),
             },
         }})
+    from schemas.batch import (
+        BatchRequestSchema,
+        BatchResponseSchema,
+        SweepRequestSchema,
+        SweepResponseSchema,
+    )
+
+    spec.path(path="/v1/batch", operations={"post": {
+        "summary": "Many problems of any family in one call; one result or problem per item",
+        "operationId": "batch",
+        "requestBody": {"required": True, "content": {
+            "application/json": {"schema": BatchRequestSchema}}},
+        "responses": {"200": {"description": "One entry per item, in order", "content": {
+            "application/json": {"schema": BatchResponseSchema}}},
+            **_problem_responses(400, 413, 415, 422)},
+    }})
+    spec.path(path="/v1/sweep", operations={"post": {
+        "summary": "One base problem with parameters varied; selected outputs as a table",
+        "operationId": "sweep",
+        "requestBody": {"required": True, "content": {
+            "application/json": {"schema": SweepRequestSchema}}},
+        "responses": {"200": {"description": "A table (JSON, or CSV with Accept: text/csv)",
+                              "content": {"application/json": {"schema": SweepResponseSchema},
+                                          "text/csv": {"schema": {"type": "string"}}}},
+                      **_problem_responses(400, 406, 413, 415, 422)},
+    }})
     spec.path(path="/v1/eigenvalues", operations={"get": {
         "summary": "Cached eigenvalue tables used by the series solvers",
         "operationId": "eigenvalues",

@@ -8,6 +8,7 @@ failures. A crash becomes a generic 500 problem; its traceback goes to the log o
 from __future__ import annotations
 
 import logging
+from dataclasses import dataclass, field
 from typing import Any
 
 from flask import Flask, Response, current_app, g
@@ -90,51 +91,75 @@ def flatten_errors(messages: Any, prefix: str = "") -> dict[str, list[str]]:
     return out
 
 
-def problem_response(type_: str, detail: str, *, status: int | None = None,
-                     errors: dict[str, list[str]] | None = None,
-                     diagnostics: dict[str, Any] | None = None,
-                     headers: dict[str, str] | None = None) -> Response:
-    default_status, title = PROBLEM_TYPES[type_]
-    body: dict[str, Any] = {"type": type_, "title": title, "status": status or default_status,
-                            "detail": detail}
-    if errors is not None:
-        body["errors"] = errors
-    if diagnostics is not None:
-        body["diagnostics"] = diagnostics
+@dataclass(frozen=True)
+class Problem:
+    """One problem, before it becomes a response (batch items embed it as a dict)."""
+
+    type: str
+    detail: str
+    status: int
+    errors: dict[str, list[str]] | None = None
+    diagnostics: dict[str, Any] | None = None
+    headers: dict[str, str] = field(default_factory=dict)
+
+    def body(self) -> dict[str, Any]:
+        out: dict[str, Any] = {"type": self.type, "title": PROBLEM_TYPES[self.type][1],
+                               "status": self.status, "detail": self.detail}
+        if self.errors is not None:
+            out["errors"] = self.errors
+        if self.diagnostics is not None:
+            out["diagnostics"] = self.diagnostics
+        return out
+
+
+def make_problem(type_: str, detail: str, **kwargs: Any) -> Problem:
+    status = kwargs.pop("status", None) or PROBLEM_TYPES[type_][0]
+    return Problem(type_, detail, status, **kwargs)
+
+
+def problem_of(exc: Exception) -> Problem | None:
+    """The problem a request-level exception stands for; None for anything else (a bug)."""
+    if isinstance(exc, ProblemError):
+        return make_problem(exc.type, exc.detail, errors=exc.errors,
+                            diagnostics=exc.diagnostics, headers=exc.headers)
+    if isinstance(exc, ValidationError):
+        errors = flatten_errors(exc.messages)
+        first = next(iter(errors.items()))
+        detail = f"{len(errors)} field(s) failed validation; first: {first[0]}: {first[1][0]}"
+        return make_problem("/problems/validation-failed", detail, errors=errors)
+    if isinstance(exc, IllPosedError):
+        type_ = f"/problems/{exc.reason}"
+        if type_ not in PROBLEM_TYPES:
+            type_ = "/problems/physics-rejected"
+        return make_problem(type_, exc.message,
+                            errors={exc.field: [exc.message]} if exc.field else None)
+    if isinstance(exc, TooLargeError):
+        return make_problem("/problems/too-large", exc.message,
+                            errors={exc.field: [exc.message]} if exc.field else None)
+    return None
+
+
+def respond(problem: Problem) -> Response:
+    body = problem.body()
     request_id = getattr(g, "request_id", None)
     if request_id:
         body["request_id"] = request_id
     response: Response = current_app.json.response(body)  # type: ignore[assignment]
-    response.status_code = body["status"]
+    response.status_code = problem.status
     response.mimetype = "application/problem+json"
-    for key, value in (headers or {}).items():
+    for key, value in problem.headers.items():
         response.headers[key] = value
     return response
 
 
-def _from_problem(exc: ProblemError) -> Response:
-    return problem_response(exc.type, exc.detail, errors=exc.errors, diagnostics=exc.diagnostics,
-                            headers=exc.headers)
+def problem_response(type_: str, detail: str, **kwargs: Any) -> Response:
+    return respond(make_problem(type_, detail, **kwargs))
 
 
-def _from_validation(exc: ValidationError) -> Response:
-    errors = flatten_errors(exc.messages)
-    first = next(iter(errors.items()))
-    detail = (f"{len(errors)} field(s) failed validation; first: {first[0]}: {first[1][0]}")
-    return problem_response("/problems/validation-failed", detail, errors=errors)
-
-
-def _from_ill_posed(exc: IllPosedError) -> Response:
-    type_ = f"/problems/{exc.reason}"
-    if type_ not in PROBLEM_TYPES:
-        type_ = "/problems/physics-rejected"
-    errors = {exc.field: [exc.message]} if exc.field else None
-    return problem_response(type_, exc.message, errors=errors)
-
-
-def _from_too_large(exc: TooLargeError) -> Response:
-    errors = {exc.field: [exc.message]} if exc.field else None
-    return problem_response("/problems/too-large", exc.message, errors=errors)
+def _from_known(exc: Exception) -> Response:
+    problem = problem_of(exc)
+    assert problem is not None  # registered only for the known exception types
+    return respond(problem)
 
 
 def _from_http(exc: HTTPException) -> Response:
@@ -160,9 +185,7 @@ def _from_crash(exc: Exception) -> Response:
 
 
 def register_error_handlers(app: Flask) -> None:
-    app.register_error_handler(ProblemError, _from_problem)
-    app.register_error_handler(ValidationError, _from_validation)
-    app.register_error_handler(IllPosedError, _from_ill_posed)
-    app.register_error_handler(TooLargeError, _from_too_large)
+    for known in (ProblemError, ValidationError, IllPosedError, TooLargeError):
+        app.register_error_handler(known, _from_known)
     app.register_error_handler(HTTPException, _from_http)
     app.register_error_handler(Exception, _from_crash)

@@ -32,3 +32,18 @@ def client(app):
 @pytest.fixture
 def plate_payload() -> dict[str, Any]:
     return copy.deepcopy(PLATE_PAYLOAD)
+
+
+TRANSIENT_PAYLOAD: dict[str, Any] = {
+    # a forged steel die block quenched in an oil bath (demo scenario, invented)
+    "shape": "slab", "half_thickness": 0.05, "conductivity": 45, "density": 7800,
+    "specific_heat": 460, "initial_temperature": 900,
+    "surface": {"type": "convection", "film_coefficient": 500, "ambient": 30},
+    "times": [60, 600, 3600], "positions": [0, 0.025, 0.05],
+    "target": {"temperature": 200, "position": 0},
+}
+
+
+@pytest.fixture
+def transient_payload() -> dict[str, Any]:
+    return copy.deepcopy(TRANSIENT_PAYLOAD)

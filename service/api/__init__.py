@@ -7,6 +7,6 @@ from flask import Blueprint
 
 def blueprints() -> list[Blueprint]:
     """Every blueprint of the service; importing them registers the solve families."""
-    from service.api import meta, plate
+    from service.api import batch, meta, plate, transient, verification
 
-    return [meta.bp, plate.bp]
+    return [meta.bp, plate.bp, transient.bp, batch.bp, verification.bp]

@@ -23,6 +23,7 @@ from service import __version__
 from service.jsonio import loads
 from service.ops.metrics import observe_solve
 from service.problems import ProblemError
+from service.tables import SEPARATORS, SelectError, flatten, select, text_value, write_csv
 
 GENERAL_CAUTION = (
     "Results support engineering judgment and do not replace it: check inputs, units and model "
@@ -33,24 +34,33 @@ SAFETY_CAUTION = (
     "surface material and contact time, and material limits on the actual product: confirm "
     "against the applicable standard and the manufacturer's data.")
 
-JSON_TYPES = ("application/json",)
-
-
 @dataclass(frozen=True)
 class Family:
-    """A solve endpoint: its kind, path, schemas and the view that calls the solver."""
+    """A solve endpoint: its kind, path, schemas and the view that calls the solver.
+
+    `picture` draws a PNG from a dumped response; `picture_payload` adjusts a request before
+    solving so the picture has something to draw (e.g. asks for an output grid).
+    """
 
     kind: str
     path: str
-    request_schema: type[Schema]
-    response_schema: type[Schema]
+    request_schema: Schema  # instances, built once: building a schema costs more than a solve
+    response_schema: Schema
     solve: Callable[[Any], Any]
     cautions: tuple[str, ...]
     summary: str
+    picture: Callable[[dict[str, Any]], bytes] | None = None
+    picture_payload: Callable[[dict[str, Any]], dict[str, Any]] | None = None
 
 
 #: Solve families by kind, filled as blueprints are imported (used by OpenAPI, batch, sweep).
 FAMILIES: dict[str, Family] = {}
+
+#: Request body types read as JSON. text/plain is accepted because browser add-ins send it to
+#: avoid a CORS preflight.
+JSON_TYPES = ("application/json", "text/plain")
+FORMATS = {"json": "application/json", "csv": "text/csv", "png": "image/png",
+           "text": "text/plain"}
 
 
 def read_json() -> Any:
@@ -59,12 +69,66 @@ def read_json() -> Any:
     if mimetype not in JSON_TYPES and not mimetype.endswith("+json"):
         raise ProblemError("/problems/unsupported-media-type",
                            f"Send the problem as application/json, not {mimetype or 'nothing'}.")
-    body = request.get_data(cache=True)
+    return _parse(request.get_data(cache=True), "Request body")
+
+
+def read_payload() -> Any:
+    """POST: the JSON body. GET: the `problem` query parameter (URL-encoded JSON)."""
+    if request.method == "POST":
+        return read_json()
+    text = request.args.get("problem")
+    if text is None:
+        raise ProblemError("/problems/validation-failed",
+                           "A GET solve needs the problem as URL-encoded JSON in ?problem=.",
+                           errors={"problem": ["Missing data for required field."]})
+    return _parse(text.encode(), "Query parameter 'problem'")
+
+
+def _parse(data: bytes, what: str) -> Any:
     try:
-        return loads(body)
+        return loads(data)
     except orjson.JSONDecodeError as exc:
-        raise ProblemError("/problems/malformed-json",
-                           f"Request body is not valid JSON: {exc}.") from exc
+        raise ProblemError("/problems/malformed-json", f"{what} is not valid JSON: {exc}.") from exc
+
+
+def wanted_format(allowed: tuple[str, ...]) -> str:
+    """`?format=` wins over the Accept header; 406 when nothing allowed is acceptable."""
+    asked = request.args.get("format")
+    if asked is not None:
+        if asked not in allowed:
+            raise ProblemError("/problems/not-acceptable",
+                               f"format {asked!r} is not offered here; choose one of "
+                               f"{', '.join(allowed)}.")
+        return asked
+    if not request.accept_mimetypes or request.accept_mimetypes.provided is False:
+        return "json"
+    best = request.accept_mimetypes.best_match([FORMATS[f] for f in allowed])
+    if best is None:
+        raise ProblemError("/problems/not-acceptable",
+                           f"None of {request.headers.get('Accept')} can be produced; this "
+                           f"resource answers {', '.join(FORMATS[f] for f in allowed)}.")
+    return next(f for f in allowed if FORMATS[f] == best)
+
+
+def csv_separator() -> str:
+    raw = request.args.get("sep", ",")
+    if raw not in SEPARATORS:
+        raise ProblemError("/problems/validation-failed", "Unknown CSV separator.",
+                           errors={"sep": ["Must be ',' (comma) or ';' (semicolon)."]})
+    return SEPARATORS[raw]
+
+
+def selected_text(body: dict[str, Any]) -> str:
+    """The value at ?select= as text for a spreadsheet cell."""
+    path = request.args["select"]
+    try:
+        return text_value(select(body, path))
+    except SelectError as exc:
+        raise ProblemError("/problems/validation-failed", str(exc),
+                           errors={"select": [str(exc)]}) from exc
+
+
+CONVERGENCE_SCHEMA = ConvergenceSchema()
 
 
 @functools.lru_cache(maxsize=64)
@@ -87,7 +151,7 @@ def run_solve(family: Family, payload: Any) -> dict[str, Any]:
     """Validate, solve and envelope one problem; raises on every failure (used by batch too)."""
     CURRENT_BUDGETS.set(current_app.extensions["conduction"]["budgets"])
     started = time.perf_counter()
-    solve_request: SolveRequest = family.request_schema().load(payload)
+    solve_request: SolveRequest = family.request_schema.load(payload)
     solve_started = time.perf_counter()
     result = family.solve(solve_request.problem)
     observe_solve(family.kind, result.method, result.convergence,
@@ -96,7 +160,7 @@ def run_solve(family: Family, payload: Any) -> dict[str, Any]:
     warnings = list(result.warnings)
     convergence = result.convergence
     if not convergence.converged:
-        diagnostics = dump_with_units(ConvergenceSchema(), convergence, units)
+        diagnostics = dump_with_units(CONVERGENCE_SCHEMA, convergence, units)
         if not solve_request.accept_unconverged:
             raise ProblemError("/problems/not-converged",
                                f"{convergence.message} Set accept_unconverged to true to receive "
@@ -108,7 +172,7 @@ def run_solve(family: Family, payload: Any) -> dict[str, Any]:
     envelope = {
         "kind": family.kind,
         "method": result.method,
-        "units": units_object(family.response_schema, units),
+        "units": units_object(type(family.response_schema), units),
         "results": result,
         "convergence": convergence,
         "safety": result.safety,
@@ -118,22 +182,47 @@ def run_solve(family: Family, payload: Any) -> dict[str, Any]:
                  "elapsed_ms": (time.perf_counter() - started) * 1e3,
                  "request_id": getattr(g, "request_id", "")},
     }
-    return dump_with_units(family.response_schema(), envelope, units)
+    return dump_with_units(family.response_schema, envelope, units)
+
+
+def answer(family: Family) -> Response:
+    """Solve the request's problem and answer in the negotiated format."""
+    allowed = ("json", "csv", "png") if family.picture else ("json", "csv")
+    fmt = "text" if "select" in request.args else wanted_format(allowed)
+    payload = read_payload()
+    if fmt == "png" and family.picture_payload and isinstance(payload, dict):
+        payload = family.picture_payload(payload)
+    body = run_solve(family, payload)
+    if fmt == "text":
+        return Response(selected_text(body), mimetype="text/plain")
+    if fmt == "csv":
+        units = body["units"]
+        rows = flatten(family.response_schema, body, units)
+        text = write_csv(["quantity", "value", "unit"], rows, csv_separator())
+        return Response(text, mimetype="text/csv")
+    if fmt == "png":
+        assert family.picture is not None
+        return Response(family.picture(body), mimetype="image/png")
+    return current_app.json.response(body)  # type: ignore[return-value]
 
 
 def solve_endpoint(kind: str, path: str, request_schema: type[Schema],
                    response_schema: type[Schema], *, summary: str,
-                   cautions: tuple[str, ...] = ()) -> Callable[[Callable[[Any], Any]], Any]:
-    """Decorate `view(problem) -> result` into a Flask view answering the solve envelope."""
+                   cautions: tuple[str, ...] = (),
+                   picture: Callable[[dict[str, Any]], bytes] | None = None,
+                   picture_payload: Callable[[dict[str, Any]], dict[str, Any]] | None = None,
+                   ) -> Callable[[Callable[[Any], Any]], Any]:
+    """Decorate `view(problem) -> result` into a Flask view answering the solve envelope
+    (JSON, CSV, PNG where `picture` is given, or one selected value as text)."""
 
     def decorate(view: Callable[[Any], Any]) -> Callable[[], Response]:
-        family = Family(kind, path, request_schema, response_schema, view, cautions, summary)
+        family = Family(kind, path, request_schema(), response_schema(), view, cautions,
+                        summary, picture, picture_payload)
         FAMILIES[kind] = family
 
         @functools.wraps(view)
         def endpoint() -> Response:
-            return current_app.json.response(  # type: ignore[return-value]
-                run_solve(family, read_json()))
+            return answer(family)
 
         return endpoint
 

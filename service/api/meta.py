@@ -67,6 +67,10 @@ class EigenvaluesResponseSchema(Schema):
         "description": "Pairs: integral over [0, 1] of the squared eigenfunction."})
 
 
+EIGENVALUES_QUERY = EigenvaluesQuerySchema()
+EIGENVALUES_RESPONSE = EigenvaluesResponseSchema()
+
+
 @bp.get("/healthz")
 def healthz() -> Any:
     return current_app.json.response({"status": "ok"})
@@ -79,8 +83,8 @@ def readyz() -> Any:
 
 @bp.get("/v1/eigenvalues")
 def eigenvalues() -> Any:
-    query = EigenvaluesQuerySchema().load(request.args.to_dict())
-    return current_app.json.response(EigenvaluesResponseSchema().dump(eigen_table(**query)))
+    query = EIGENVALUES_QUERY.load(request.args.to_dict())
+    return current_app.json.response(EIGENVALUES_RESPONSE.dump(eigen_table(**query)))
 
 
 def eigen_table(geometry: str, biot: float, start_biot: float, count: int) -> dict[str, Any]:

@@ -2,10 +2,13 @@
 
 from __future__ import annotations
 
+from typing import Any
+
 from flask import Blueprint
 
 from schemas.plate import PlateRequestSchema, PlateResponseSchema
 from service.api.common import solve_endpoint
+from service.pictures import plate_picture
 from service.solvers.plate import PlateProblem, PlateResult, solve_plate
 
 bp = Blueprint("plate", __name__)
@@ -15,9 +18,15 @@ PLATE_CAUTIONS = (
 )
 
 
-@bp.post("/v1/plate")
+def with_picture_grid(payload: dict[str, Any]) -> dict[str, Any]:
+    """A picture needs a field: ask for a 101 x 101 grid unless the caller chose one."""
+    return payload if payload.get("grid") else {**payload, "grid": {"nx": 101, "ny": 101}}
+
+
+@bp.route("/v1/plate", methods=["GET", "POST"])
 @solve_endpoint("plate", "/v1/plate", PlateRequestSchema, PlateResponseSchema,
                 summary="Steady 2D conduction in a rectangle (series solution)",
-                cautions=PLATE_CAUTIONS)
+                cautions=PLATE_CAUTIONS, picture=plate_picture,
+                picture_payload=with_picture_grid)
 def plate(problem: PlateProblem) -> PlateResult:
     return solve_plate(problem)

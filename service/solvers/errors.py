@@ -19,7 +19,8 @@ class IllPosedError(ValueError):
         Dotted JSON path of the offending request field, when one field is to blame.
     reason : str
         Short stable code that becomes the problem ``type`` suffix: ``physics-rejected``
-        (default), ``target-unreachable``, ``not-unique``.
+        (default), ``target-unreachable``, ``not-unique``, or ``validation-failed`` for an
+        input the schema could not judge alone (e.g. a position outside the body).
     """
 
     def __init__(self, message: str, *, field: str | None = None,

@@ -36,9 +36,9 @@ def start_server(extra_env: dict[str, str] | None = None, workers: int = 2):
         if proc.poll() is not None:
             raise RuntimeError("gunicorn exited: " + proc.stderr.read().decode()[-2000:])
         try:
-            if requests.get(base + "/healthz", timeout=1).status_code == 200:
+            if requests.get(base + "/healthz", timeout=5).status_code == 200:
                 return proc, base
-        except requests.ConnectionError:
+        except requests.RequestException:
             time.sleep(0.1)
     proc.kill()
     raise RuntimeError("gunicorn did not become healthy within 30 s")

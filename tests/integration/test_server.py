@@ -32,6 +32,14 @@ def test_plate_solve_envelope(server):
     assert response.headers["X-Request-ID"] == body["meta"]["request_id"]
 
 
+def test_transient_over_http(server):
+    from tests.conftest import TRANSIENT_PAYLOAD
+
+    response = requests.post(server + "/v1/transient", json=TRANSIENT_PAYLOAD, timeout=30)
+    assert response.status_code == 200, response.text
+    assert response.json()["results"]["target_time"] > 0
+
+
 def test_problem_details_over_http(server):
     response = requests.post(server + "/v1/plate", data="{", timeout=5,
                              headers={"Content-Type": "application/json"})
