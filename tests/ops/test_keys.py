@@ -4,6 +4,8 @@ from __future__ import annotations
 
 import hashlib
 import hmac
+import json
+import urllib.parse
 
 import pytest
 
@@ -145,3 +147,15 @@ def test_key_tool_prints_a_key_and_its_digest(capsys, monkeypatch):
     monkeypatch.setattr("sys.stdin", __import__("io").StringIO(KEY + "\n"))
     assert keys.main(["--hash"]) == 0
     assert capsys.readouterr().out.strip() == hash_key(KEY)
+
+
+def test_spreadsheet_cell_get_with_a_query_key(plate_payload):
+    # the reason query keys exist: a cell formula can only build a URL
+    query = urllib.parse.urlencode({"problem": json.dumps(plate_payload),
+                                    "select": "safety.status", "api_key": KEY})
+    opened = _client(API_KEY_QUERY=True)
+    response = opened.get(f"/v1/plate?{query}")
+    assert response.status_code == 200, response.get_data(as_text=True)
+    assert response.mimetype == "text/plain"
+    assert response.get_data(as_text=True) in ("ok", "warning", "exceeded", "not_checked")
+    assert _client().get(f"/v1/plate?{query}").status_code == 403
