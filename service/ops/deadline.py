@@ -56,7 +56,6 @@ class _Deadline:
 
     def __init__(self) -> None:
         self.armed = False
-        self.fired = False
         self.budget = 0.0
         self.started = 0.0
         self.previous_handler: Any = None
@@ -66,18 +65,18 @@ class _Deadline:
         if self.armed or threading.current_thread() is not threading.main_thread():
             return
         self.budget = budget
-        self.fired = False
         self.started = time.monotonic()
         self.previous_handler = signal.signal(signal.SIGALRM, self._on_alarm)
+        self.armed = True  # before the timer starts, so even an instant alarm counts
         self.previous_timer = signal.setitimer(signal.ITIMER_REAL, budget)
-        self.armed = True
 
     def disarm(self) -> None:
         if not self.armed:
             return
         self.armed = False
         signal.setitimer(signal.ITIMER_REAL, 0)
-        signal.signal(signal.SIGALRM, self.previous_handler)
+        # None: the earlier handler was not installed from Python; the default is the best guess
+        signal.signal(signal.SIGALRM, self.previous_handler or signal.SIG_DFL)
         remaining, interval = self.previous_timer
         if remaining > 0:
             # give the earlier timer back what is left of it (at least a moment)
@@ -88,7 +87,6 @@ class _Deadline:
         if not self.armed:
             return
         signal.setitimer(signal.ITIMER_REAL, REPEAT_SECONDS)  # in case it is swallowed
-        self.fired = True
         raise TimeBudgetExceeded(self.budget)
 
 
