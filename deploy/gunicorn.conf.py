@@ -146,6 +146,19 @@ preload_app = False
 _RUNTIME: dict[str, str] = {}
 
 
+def _remove_orphaned_runtime_dirs(base: str) -> None:
+    """Runtime directories of masters that were killed (on_exit never ran) fill a tmpfs."""
+    for path in glob.glob(os.path.join(base, "conduction-*", "master.pid")):
+        try:
+            with open(path) as handle:
+                pid = int(handle.read())
+            os.kill(pid, 0)
+        except ProcessLookupError:
+            shutil.rmtree(os.path.dirname(path), ignore_errors=True)
+        except (OSError, ValueError):
+            continue  # another user's, or unreadable: leave it
+
+
 def on_starting(server: Any) -> None:
     """Make the shared runtime directory: Prometheus samples and the drain marker.
 
@@ -153,8 +166,11 @@ def on_starting(server: Any) -> None:
     else a fresh directory; either way samples left by an earlier run are removed, or they
     would be counted again.
     """
+    _remove_orphaned_runtime_dirs(_memory_dir() or tempfile.gettempdir())
     run_dir = tempfile.mkdtemp(prefix="conduction-", dir=_memory_dir())
     _RUNTIME["run_dir"] = run_dir
+    with open(os.path.join(run_dir, "master.pid"), "w") as handle:
+        handle.write(str(os.getpid()))
     metrics_dir = (os.environ.get("CONDUCTION_METRICS_DIR")
                    or os.environ.get("PROMETHEUS_MULTIPROC_DIR")
                    or os.path.join(run_dir, "metrics"))

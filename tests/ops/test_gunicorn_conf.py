@@ -156,3 +156,13 @@ def test_second_sigterm_or_no_drain_stops_at_once(monkeypatch, tmp_path):
     with pytest.raises(StopIteration):
         arbiter.handle_term()
     assert (tmp_path / "other").exists()  # readiness is 503 for the last moments too
+
+
+def test_runtime_directories_of_killed_masters_are_removed(monkeypatch, tmp_path):
+    conf = load_conf(monkeypatch)
+    dead, alive = tmp_path / "conduction-dead", tmp_path / "conduction-alive"
+    for path, pid in ((dead, 2**22 + 12345), (alive, os.getpid())):  # above any pid_max
+        (path / "metrics").mkdir(parents=True)
+        (path / "master.pid").write_text(str(pid))
+    conf["_remove_orphaned_runtime_dirs"](str(tmp_path))
+    assert not dead.exists() and alive.exists()
