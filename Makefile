@@ -42,7 +42,7 @@ load: $(STAMP)
 	$(BIN)/python bench/load.py
 
 verify: $(STAMP)
-	$(BIN)/python -m service.api.verification
+	$(BIN)/python -m service.api.verification --readme
 
 lint: $(STAMP)
 	$(BIN)/python -m pip install --quiet -e '.[test,dev]'
