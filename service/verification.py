@@ -10,6 +10,7 @@ half a unit in the last printed digit unless the source states its own acceptanc
 
 from __future__ import annotations
 
+import math
 from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Any
@@ -62,6 +63,32 @@ _T4_PLATE = {
 }
 _T4_SOURCE = ("NAFEMS standard benchmark T4 (2D steady conduction with convection), target "
               "temperature 18.25 degC at point E (0.6 m, 0.2 m); from memory")
+
+_T4_GRID = {**_T4_PLATE, "cells": {"nx": 60, "ny": 100}}
+_T4_GRID_SOURCE = (_T4_SOURCE + "; tolerance +-0.05 K as for the series case (not recalled from "
+                   "the document)")
+
+# NAFEMS T3: a 0.1 m bar, k = 35.0 W/(m K), rho = 7200 kg/m^3, c = 440.5 J/(kg K), initially
+# 0 degC, held at 0 degC at x = 0 and at 100 sin(pi t / 40) degC at x = 0.1 m. The sine is given
+# as a time table every 0.2 s (its linear interpolation is within 0.003 K of the sine).
+_T3_STEP = 0.2
+_T3_GRID = {
+    "width": 0.1, "height": 0.01, "cells": {"nx": 200, "ny": 1},
+    "conductivity": 35.0, "density": 7200.0, "specific_heat": 440.5,
+    "edges": {"left": {"type": "temperature", "value": 0.0},
+              "right": {"type": "temperature", "value": {"table": [
+                  [round(i * _T3_STEP, 10),
+                   round(100.0 * math.sin(math.pi * i * _T3_STEP / 40.0), 10)]
+                  for i in range(161)]}},
+              "bottom": {"type": "insulated"}, "top": {"type": "insulated"}},
+    "points": [[0.08, 0.005]],
+    "transient": {"initial_temperature": 0.0, "times": [32.0], "time_step": _T3_STEP,
+                  "scheme": "crank_nicolson"},
+}
+_T3_SOURCE = ("NAFEMS standard benchmark T3 (1D transient conduction with a sinusoidal end "
+              "temperature), target 36.60 degC at x = 0.08 m, t = 32 s; from memory (an "
+              "independent Fourier-series solution with numpy of the recalled inputs gives "
+              "36.603 degC)")
 
 CASES: list[Case] = [
     *(Case(id=f"eigen-{g}-bi{bi:g}-root", title=f"{g}, Bi = {bi:g}: first eigenvalue",
@@ -122,6 +149,15 @@ CASES: list[Case] = [
            select="results.heat_flow", published=q, atol=0.05, unit="W")
       for name, k, q in (("copper", 398.0, 8.3), ("aluminium", 180.0, 5.6),
                          ("stainless", 14.0, 1.6))),
+    Case(id="nafems-t4-grid", title="NAFEMS T4 by the finite-volume grid (60 x 100 cells)",
+         source=_T4_GRID_SOURCE, kind="grid", payload=_T4_GRID,
+         select="results.points.0.temperature", published=18.25, atol=0.05, unit="degC"),
+    Case(id="nafems-t4-plate-grid", title="NAFEMS T4 by the plate with method grid",
+         source=_T4_GRID_SOURCE, kind="plate", payload={**_T4_PLATE, "method": "grid"},
+         select="results.points.0.temperature", published=18.25, atol=0.05, unit="degC"),
+    Case(id="nafems-t3-grid", title="NAFEMS T3 by the finite-volume grid (transient, 200 cells)",
+         source=_T3_SOURCE, kind="grid", payload=_T3_GRID,
+         select="results.points.0.temperature", published=36.60, atol=0.005, unit="degC"),
 ]
 
 
