@@ -21,10 +21,11 @@ from __future__ import annotations
 import math
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
+from functools import lru_cache
 from types import MappingProxyType
+from typing import NamedTuple
 
 import numpy as np
-from scipy import optimize
 
 from service.solvers.convergence import Convergence
 from service.solvers.eigen import MAX_COUNT, pair_phase, pair_roots
@@ -239,6 +240,15 @@ def _edge_point(name: str, s: _Array, width: float, height: float) -> tuple[_Arr
 def _corner_end(edge: str, other: str) -> int:
     """0 if the corner with `other` is at s = 0 of `edge`, 1 if at s = L."""
     return 0 if _FRAMES[edge].start == other else 1
+
+
+def _affine_frame(name: str, width: float, height: float) -> tuple[tuple[float, ...], ...]:
+    """Rows (a, b, c) with sigma = s / L and t = a x + b y + c in the frame of edge `name`."""
+    f = _FRAMES[name]
+    length = _lengths(name, width, height)[0]
+    if f.along_x:
+        return ((1.0 / length, 0.0, 0.0), (0.0, -1.0, height) if f.far else (0.0, 1.0, 0.0))
+    return ((0.0, 1.0 / length, 0.0), (-1.0, 0.0, width) if f.far else (1.0, 0.0, 0.0))
 
 
 # =========================================================================== edge kinds
@@ -474,29 +484,69 @@ def particular_solution(problem: PlateProblem, cond: dict[str, _EdgeCondition]) 
 # =========================================================================== stage 2: corners
 
 
-# harmonic polynomials in scaled coordinates (u, v) = (x, y) / scale: value, d/du, d/dv
-_HARMONIC: tuple[tuple[Callable[[_Array, _Array], _Array], ...], ...] = (
-    (lambda u, v: np.ones_like(u), lambda u, v: np.zeros_like(u), lambda u, v: np.zeros_like(u)),
-    (lambda u, v: u, lambda u, v: np.ones_like(u), lambda u, v: np.zeros_like(u)),
-    (lambda u, v: v, lambda u, v: np.zeros_like(u), lambda u, v: np.ones_like(u)),
-    (lambda u, v: u * u - v * v, lambda u, v: 2 * u, lambda u, v: -2 * v),
-    (lambda u, v: u * v, lambda u, v: v, lambda u, v: u),
-    (lambda u, v: u**3 - 3 * u * v * v, lambda u, v: 3 * u * u - 3 * v * v,
-     lambda u, v: -6 * u * v),
-    (lambda u, v: 3 * u * u * v - v**3, lambda u, v: 6 * u * v,
-     lambda u, v: 3 * u * u - 3 * v * v),
-    (lambda u, v: u**4 - 6 * u * u * v * v + v**4, lambda u, v: 4 * u**3 - 12 * u * v * v,
-     lambda u, v: -12 * u * u * v + 4 * v**3),
-    (lambda u, v: u**3 * v - u * v**3, lambda u, v: 3 * u * u * v - v**3,
-     lambda u, v: u**3 - 3 * u * v * v),
-)
+# =========================================================================== stage 2: corners
+
+
+def _harmonic_table() -> _Array:
+    """H[k, i, j]: coefficient of u^i v^j in the k-th harmonic polynomial (degree <= 4)."""
+    h = np.zeros((9, 5, 5))
+    h[0, 0, 0] = 1.0                                       # 1
+    h[1, 1, 0] = 1.0                                       # u
+    h[2, 0, 1] = 1.0                                       # v
+    h[3, 2, 0], h[3, 0, 2] = 1.0, -1.0                     # u^2 - v^2
+    h[4, 1, 1] = 1.0                                       # u v
+    h[5, 3, 0], h[5, 1, 2] = 1.0, -3.0                     # u^3 - 3 u v^2
+    h[6, 2, 1], h[6, 0, 3] = 3.0, -1.0                     # 3 u^2 v - v^3
+    h[7, 4, 0], h[7, 2, 2], h[7, 0, 4] = 1.0, -6.0, 1.0    # u^4 - 6 u^2 v^2 + v^4
+    h[8, 3, 1], h[8, 1, 3] = 1.0, -1.0                     # u^3 v - u v^3
+    return h
+
+
+_POWERS = np.arange(5)
+_POWERS.setflags(write=False)
+
+
+def _d_du(c: _Array) -> _Array:
+    """Coefficients of d/du of polynomials given as c[..., i, j] (of u^i v^j)."""
+    out = np.zeros_like(c)
+    out[..., :-1, :] = c[..., 1:, :] * _POWERS[1:, None]
+    return out
+
+
+def _d_dv(c: _Array) -> _Array:
+    """Coefficients of d/dv of polynomials given as c[..., i, j] (of u^i v^j)."""
+    out = np.zeros_like(c)
+    out[..., :, :-1] = c[..., :, 1:] * _POWERS[None, 1:]
+    return out
+
+
+# harmonic polynomials in scaled coordinates (u, v) = (x, y) / scale, with their derivatives
+# (read-only constants)
+_HARMONIC = _harmonic_table()
+_HARMONIC_DU = _d_du(_HARMONIC)
+_HARMONIC_DV = _d_dv(_HARMONIC)
+for _table in (_HARMONIC, _HARMONIC_DU, _HARMONIC_DV):
+    _table.setflags(write=False)
 _BASIS_DEGREE = np.array([0, 1, 1, 2, 2, 3, 3, 4, 4])
+_BASIS_DEGREE.setflags(write=False)
+
+
+def _monomials(z: _Array) -> _Array:
+    """z^0 .. z^4 along a new last axis."""
+    return np.asarray(z, float)[..., None] ** _POWERS
+
+
+def _poly2(c: _Array, u: _Array, v: _Array) -> _Array:
+    """sum_ij c[i, j] u^i v^j at points (u, v) (shapes broadcast)."""
+    return np.einsum("...i,ij,...j->...", _monomials(u), c, _monomials(v))
 
 
 def _harmonic_basis(u: _Array, v: _Array) -> tuple[_Array, _Array, _Array]:
-    """All basis values and derivatives, stacked along axis 0."""
+    """All basis values and derivatives d/du, d/dv, stacked along axis 0."""
     u, v = np.broadcast_arrays(np.asarray(u, float), np.asarray(v, float))
-    return tuple(np.stack([f[i](u, v) for f in _HARMONIC]) for i in range(3))  # type: ignore
+    mu, mv = _monomials(u), _monomials(v)
+    return tuple(np.einsum("...i,kij,...j->k...", mu, t, mv)  # type: ignore[return-value]
+                 for t in (_HARMONIC, _HARMONIC_DU, _HARMONIC_DV))
 
 
 @dataclass(frozen=True)
@@ -506,36 +556,66 @@ class CornerPolynomial:
     coefficients: _Array
     scale: float
 
-    def _sum(self, which: int, x: _Array, y: _Array) -> _Array:
-        u, v = np.broadcast_arrays(np.asarray(x, float) / self.scale,
-                                   np.asarray(y, float) / self.scale)
-        out = np.zeros(u.shape)
-        for c, f in zip(self.coefficients, _HARMONIC, strict=True):
-            if c != 0.0:
-                out = out + c * f[which](u, v)
-        return out
+    @property
+    def array(self) -> _Array:
+        """Coefficients c[i, j] of u^i v^j, (u, v) = (x, y) / scale."""
+        return (self.coefficients @ _HARMONIC.reshape(9, 25)).reshape(5, 5)
 
     def value(self, x: _Array, y: _Array) -> _Array:
-        return self._sum(0, x, y)
+        s = self.scale
+        return _poly2(self.array, np.asarray(x, float) / s, np.asarray(y, float) / s)
 
     def gradient(self, x: _Array, y: _Array) -> tuple[_Array, _Array]:
-        return self._sum(1, x, y) / self.scale, self._sum(2, x, y) / self.scale
+        s, c = self.scale, self.array
+        u, v = np.asarray(x, float) / s, np.asarray(y, float) / s
+        return _poly2(_d_du(c), u, v) / s, _poly2(_d_dv(c), u, v) / s
+
+
+def _particular_array(particular: Particular, scale: float) -> _Array:
+    """T_p as coefficients c[i, j] of u^i v^j, (u, v) = (x, y) / scale."""
+    c = np.zeros((5, 5))
+    if particular.axis < 0:
+        return c
+    line = (particular.b, particular.a * scale, -0.5 * particular.curvature * scale * scale)
+    for j, v in enumerate(line):
+        if particular.axis == 0:
+            c[j, 0] = v
+        else:
+            c[0, j] = v
+    return c
 
 
 @dataclass(frozen=True)
 class _Base:
-    """T_p + Pi: the part of the solution known in closed form."""
+    """T_p + Pi: the part of the solution known in closed form, as one polynomial c[i, j] of
+    u^i v^j with (u, v) = (x, y) / scale, and its derivatives."""
 
     particular: Particular
     corner: CornerPolynomial
+    scale: float
+    coef: _Array
+    coef_u: _Array
+    coef_v: _Array
+
+    @classmethod
+    def build(cls, particular: Particular, corner: CornerPolynomial) -> _Base:
+        c = _particular_array(particular, corner.scale) + corner.array
+        return cls(particular, corner, corner.scale, c, _d_du(c), _d_dv(c))
 
     def value(self, x: _Array, y: _Array) -> _Array:
-        return self.particular.value(x, y) + self.corner.value(x, y)
+        s = self.scale
+        return _poly2(self.coef, np.asarray(x, float) / s, np.asarray(y, float) / s)
 
     def gradient(self, x: _Array, y: _Array) -> tuple[_Array, _Array]:
-        gx1, gy1 = self.particular.gradient(x, y)
-        gx2, gy2 = self.corner.gradient(x, y)
-        return gx1 + gx2, gy1 + gy2
+        s = self.scale
+        u, v = np.asarray(x, float) / s, np.asarray(y, float) / s
+        return _poly2(self.coef_u, u, v) / s, _poly2(self.coef_v, u, v) / s
+
+    def grid(self, gx: _Array, gy: _Array) -> _Array:
+        """Values on the tensor grid, (len(gy), len(gx))."""
+        s = self.scale
+        return _monomials(np.asarray(gy, float) / s) @ self.coef.T @ _monomials(
+            np.asarray(gx, float) / s).T
 
 
 @dataclass(frozen=True)
@@ -604,43 +684,44 @@ def corner_polynomial(problem: PlateProblem, cond: dict[str, _EdgeCondition],
     """
     w, h, k = problem.width, problem.height, problem.conductivity
     scale = max(w, h)
-    rows_req: list[_Array] = []
-    rhs_req: list[float] = []
     jump_carriers = {(cn, e) for cn, (e, _) in plan.singular.items()}
+    wanted = []  # (edge, end) whose remaining data must vanish
     for (hor, ver), cname in _CORNERS.items():
         for e, f in ((hor, ver), (ver, hor)):
-            ce, cf = cond[e], cond[f]
-            if cf.kind != "D":
-                continue
-            if (cname, e) in jump_carriers:
-                continue
-            end = _corner_end(e, f)
-            length = _lengths(e, w, h)[0]
-            x, y = _edge_point(e, np.array([0.0 if end == 0 else length]), w, h)
-            val, du, dv = _harmonic_basis(x / scale, y / scale)
+            if cond[f].kind == "D" and (cname, e) not in jump_carriers:
+                wanted.append((e, _corner_end(e, f)))
+    coef = np.zeros(len(_BASIS_DEGREE))
+    if wanted:
+        xy = [_edge_point(e, np.array([0.0 if end == 0 else _lengths(e, w, h)[0]]), w, h)
+              for e, end in wanted]
+        x = np.array([float(v[0][0]) for v in xy])
+        y = np.array([float(v[1][0]) for v in xy])
+        val, du, dv = _harmonic_basis(x / scale, y / scale)   # (9, rows)
+        tp = particular.value(x, y)
+        gx, gy = particular.gradient(x, y)
+        rows, rhs = [], []
+        for r, (e, end) in enumerate(wanted):
+            ce = cond[e]
             nx, ny = _FRAMES[e].normal
-            dn = (du * nx + dv * ny)[:, 0] / scale
-            tp = float(particular.value(x, y)[0])
-            gx, gy = particular.gradient(x, y)
-            tpn = float(gx[0] * nx + gy[0] * ny)
+            dn = (du[:, r] * nx + dv[:, r] * ny) / scale
+            tpn = float(gx[r] * nx + gy[r] * ny)
             norm = k / scale + ce.film
             if ce.kind == "D":
-                row, rhs = val[:, 0], _corner_temperature(ce, end) - tp
+                rows.append(val[:, r])
+                rhs.append(_corner_temperature(ce, end) - float(tp[r]))
             elif ce.kind == "N":
-                row, rhs = k * dn / norm, (ce.flux - k * tpn) / norm
+                rows.append(k * dn / norm)
+                rhs.append((ce.flux - k * tpn) / norm)
             else:
-                row = (k * dn + ce.film * val[:, 0]) / norm
-                rhs = (ce.film * ce.ambient - k * tpn - ce.film * tp) / norm
-            rows_req.append(row)
-            rhs_req.append(rhs)
-    weight = 0.25 ** _BASIS_DEGREE.astype(float)
-    z = np.zeros(len(weight))
-    if rows_req:
-        z, *_ = np.linalg.lstsq(np.array(rows_req) * weight, np.array(rhs_req), rcond=None)
-    coef = weight * z
-    # drop rounding-level coefficients (they only cost evaluation time)
-    coef[np.abs(coef) <= 1e-14 * np.abs(coef).max(initial=0.0)] = 0.0
+                rows.append((k * dn + ce.film * val[:, r]) / norm)
+                rhs.append((ce.film * ce.ambient - k * tpn - ce.film * float(tp[r])) / norm)
+        weight = 0.25 ** _BASIS_DEGREE.astype(float)
+        z, *_ = np.linalg.lstsq(np.array(rows) * weight, np.array(rhs), rcond=None)
+        coef = weight * z
+        # drop rounding-level coefficients (they only cost evaluation time)
+        coef[np.abs(coef) <= 1e-14 * np.abs(coef).max(initial=0.0)] = 0.0
     return CornerPolynomial(coef, scale)
+
 
 
 # =========================================================================== stage 3: edge data
@@ -671,6 +752,16 @@ class EdgeData:
             out = out + np.interp(sigma, prof[0], prof[1])
         return out
 
+    def end_values(self) -> tuple[float, float]:
+        """(f(0), f(1))."""
+        c = [float(v) for v in self.poly]
+        f0, f1 = c[0], math.fsum(c)
+        prof = self._profile()
+        if prof is not None:
+            f0 += float(prof[1][0])
+            f1 += float(prof[1][-1])
+        return f0, f1
+
     def derivative(self, sigma: float, side: int) -> float:
         """df/dsigma at sigma from the right (side 0) or left (side 1)."""
         c = [float(v) for v in self.poly]
@@ -682,7 +773,8 @@ class EdgeData:
         return d
 
     def variations(self) -> tuple[float, float]:
-        """(TV(f), TV(f')) bounds over [0, 1] (triangle inequality over the two parts)."""
+        """Upper bounds of (TV(f), TV(f')) over [0, 1] (triangle inequality over the two
+        parts; `_poly_variation` for the polynomial)."""
         tv0 = _poly_variation(self.poly)
         tv1 = _poly_variation(np.polynomial.polynomial.polyder(self.poly))
         prof = self._profile()
@@ -700,24 +792,41 @@ def _horner(c: list[float], x: float) -> float:
     return out
 
 
+def _bernstein_matrix(degree: int) -> _Array:
+    """B[k, i] = C(k, i) / C(degree, i): sigma^i = sum_k B[k, i] b_{k,degree}(sigma), the
+    power basis (i <= 4) in the Bernstein basis of the given degree (degree elevation)."""
+    out = np.array([[math.comb(k, i) / math.comb(degree, i) if k >= i else 0.0
+                     for i in range(5)] for k in range(degree + 1)])
+    out.setflags(write=False)
+    return out
+
+
+#: Power basis (degree <= 4) to the Bernstein basis of degree 32 (read-only constant).
+_TO_BERNSTEIN = _bernstein_matrix(32)
+
+
 def _poly_variation(c: _Array) -> float:
-    """Total variation of a polynomial on [0, 1]: |differences| between its values at 0, 1
-    and the real roots of its derivative inside (0, 1)."""
-    coef = [float(v) for v in c]
-    while coef and coef[-1] == 0.0:
-        coef.pop()
-    if len(coef) <= 1:
-        return 0.0
-    d = [j * coef[j] for j in range(1, len(coef))]
-    crit = [0.0, 1.0]
-    if len(d) == 2:
-        crit.append(-d[0] / d[1])
-    elif len(d) > 2:
-        r = np.roots(d[::-1])
-        crit += [float(v.real) for v in r if abs(v.imag) < 1e-12]
-    pts = sorted(v for v in crit if 0.0 <= v <= 1.0)
-    vals = [_horner(coef, v) for v in pts]
-    return float(sum(abs(b - a) for a, b in zip(vals, vals[1:], strict=False)))
+    """Upper bound of the total variation of a polynomial (degree <= 4) on [0, 1].
+
+    With Bernstein coefficients b_k (degree m), p' = m sum_k (b_{k+1} - b_k) b_{k,m-1} and each
+    basis function integrates to 1/m, so TV(p) = int |p'| <= sum_k |b_{k+1} - b_k|; at degree 32
+    this is within a few per cent of the exact value (the control polygon converges like 1/m).
+    """
+    coef = np.zeros(5)
+    c = np.asarray(c, float)
+    coef[:c.size] = c
+    return float(np.abs(np.diff(_TO_BERNSTEIN @ coef)).sum())
+
+
+def _along_edge(c: _Array, name: str, width: float, height: float, scale: float) -> _Array:
+    """Coefficients in powers of sigma = s / L of the polynomial c[i, j] (of u^i v^j,
+    (u, v) = (x, y) / scale) restricted to edge `name`."""
+    f = _FRAMES[name]
+    length = _lengths(name, width, height)[0]
+    stretch = (length / scale) ** _POWERS
+    if f.along_x:
+        return (c @ ((height / scale if f.far else 0.0) ** _POWERS)) * stretch
+    return (((width / scale if f.far else 0.0) ** _POWERS) @ c) * stretch
 
 
 def edge_data(problem: PlateProblem, cond: dict[str, _EdgeCondition], base: _Base,
@@ -725,28 +834,27 @@ def edge_data(problem: PlateProblem, cond: dict[str, _EdgeCondition], base: _Bas
     """Data left for the harmonic remainder U = T - T_p - Pi on edge `name`.
 
     D: U = T_edge - base; N: -k dU/dt = q - k d(base)/dn; R: -k dU/dt + h U = h T_amb -
-    (k d(base)/dn + h base); t is the inward distance and n the outward normal.
+    (k d(base)/dn + h base); t is the inward distance and n the outward normal. The base is a
+    polynomial of degree <= 4, restricted to the edge exactly.
     """
     w, h, k = problem.width, problem.height, problem.conductivity
-    length = _lengths(name, w, h)[0]
     c = cond[name]
-    # base is a polynomial of degree <= 4 along the edge: fit it exactly at 9 Chebyshev nodes
-    sig = 0.5 - 0.5 * np.cos(np.pi * (np.arange(9) + 0.5) / 9)
-    x, y = _edge_point(name, sig * length, w, h)
+    s = base.scale
     nx, ny = _FRAMES[name].normal
-    bval = base.value(x, y)
-    gx, gy = base.gradient(x, y)
-    bn = gx * nx + gy * ny
+    bval = _along_edge(base.coef, name, w, h, s)
+    bn = (nx * _along_edge(base.coef_u, name, w, h, s)
+          + ny * _along_edge(base.coef_v, name, w, h, s)) / s
     if c.kind == "D":
-        part, const = -bval, 0.0
+        poly = -bval
     elif c.kind == "N":
-        part, const = -k * bn, c.flux
+        poly = -k * bn
+        poly[0] += c.flux
     else:
-        part, const = -(k * bn + c.film * bval), c.film * c.ambient
-    poly = np.polynomial.polynomial.polyfit(sig, part, 4)
-    poly[0] += const
+        poly = -(k * bn + c.film * bval)
+        poly[0] += c.film * c.ambient
     if c.kind == "D":
         assert c.profile_s is not None and c.profile_t is not None
+        length = _lengths(name, w, h)[0]
         if len(c.profile_s) == 2 and c.profile_t[0] == c.profile_t[1]:
             poly[0] += c.profile_t[0]
             return EdgeData(None, None, poly)
@@ -816,6 +924,12 @@ class Modes:
         return int(self.mu.size)
 
 
+def _nonzero(mu: _Array) -> _Array:
+    """mu with a zero root (only ever the first, for two insulated ends) replaced by 1, for
+    divisions whose zero-root value is set apart."""
+    return np.where(mu == 0.0, 1.0, mu) if mu.size and mu[0] == 0.0 else mu
+
+
 def edge_eigenvalues(sub: SubProblem, count: int) -> tuple[_Array, _Array, _Array]:
     """Roots mu_n, phases phi_n and norms int_0^1 X_n^2 of the first `count` modes.
 
@@ -826,14 +940,11 @@ def edge_eigenvalues(sub: SubProblem, count: int) -> tuple[_Array, _Array, _Arra
     mu = np.asarray(pair_roots(lk, rk, lb, rb, count))
     phase = pair_phase(lk, lb, mu)
 
-    def sin2(kind: str, bi: float) -> _Array:
-        if kind != "convective":
-            return np.zeros_like(mu)
-        return 2.0 * mu * bi / (mu * mu + bi * bi)
-
-    with np.errstate(divide="ignore", invalid="ignore"):
-        norm = 0.5 + (sin2(lk, lb) + sin2(rk, rb)) / (4.0 * mu)
-    norm = np.where(mu == 0.0, 1.0, norm)
+    sin2 = [2.0 * mu * bi / (mu * mu + bi * bi) for kind, bi in (sub.start, sub.end)
+            if kind == "convective"]
+    norm = 0.5 + sum(sin2) / (4.0 * _nonzero(mu)) if sin2 else np.full(mu.shape, 0.5)
+    if mu.size and mu[0] == 0.0:
+        norm[0] = 1.0
     return mu, phase, norm
 
 
@@ -913,11 +1024,50 @@ def _profile_projection(breaks: _Array, values: _Array, mu: _Array, phase: _Arra
     return out
 
 
+#: k! and j!/(j-k)!: derivatives of sum_j c_j sigma^j at 0 and 1 (read-only constants).
+_DERIVATIVES_AT_0 = np.array([math.factorial(k) for k in range(5)], dtype=float)
+_DERIVATIVES_AT_1 = np.array([[float(math.perm(j, k)) for j in range(5)] for k in range(5)])
+_DERIVATIVES_AT_0.setflags(write=False)
+_DERIVATIVES_AT_1.setflags(write=False)
+
+
+def _polynomial_projection(poly: _Array, mu: _Array, phase: _Array) -> _Array:
+    """int_0^1 f(sigma) sin(mu sigma + phi) dsigma for a polynomial f of degree <= 4, exactly.
+
+    Integrating by parts until the fifth derivative vanishes, with theta = mu sigma + phi and
+    f_k the k-th derivative: A(sigma) = -f cos(theta) / mu + f_1 sin(theta) / mu^2
+    + f_2 cos(theta) / mu^3 - f_3 sin(theta) / mu^4 - f_4 cos(theta) / mu^5, and the integral is
+    A(1) - A(0). Modes with mu < 2, where these terms would cancel, use 12-point Gauss-Legendre
+    instead (exact to rounding for so slowly turning integrands).
+    """
+    c = np.zeros(5)
+    c[:poly.size] = poly
+    # derivatives at sigma = 0 and 1: f_k(0) = k! c_k, f_k(1) = sum_j j!/(j-k)! c_j
+    d0 = (_DERIVATIVES_AT_0 * c).tolist()
+    d1 = (_DERIVATIVES_AT_1 @ c).tolist()
+    big = mu >= 2.0
+    inv = 1.0 / _nonzero(mu)
+    th1 = mu + phase
+    i2 = inv * inv
+    # cosine and sine factors of A at each end (Horner in 1/mu^2)
+    ca1 = inv * (-d1[0] + i2 * (d1[2] - i2 * d1[4]))
+    ca0 = inv * (-d0[0] + i2 * (d0[2] - i2 * d0[4]))
+    sa1 = i2 * (d1[1] - i2 * d1[3])
+    sa0 = i2 * (d0[1] - i2 * d0[3])
+    out = ca1 * np.cos(th1) + sa1 * np.sin(th1) - ca0 * np.cos(phase) - sa0 * np.sin(phase)
+    if not big.all():
+        small = np.flatnonzero(~big)
+        s_nodes = 0.5 * (1.0 + _GL_X)
+        f_nodes = _monomials(s_nodes) @ c
+        vals = np.sin(mu[small, None] * s_nodes + phase[small, None])
+        out[small] = vals @ (0.5 * _GL_W * f_nodes)
+    return out
+
+
 def edge_coefficients(sub: SubProblem, mu: _Array, phase: _Array, norm: _Array) -> _Array:
     """c_n = <f, X_n> / <X_n, X_n> with exact integrals of the polynomial and profile parts."""
     data = sub.data
-    proj = np.tensordot(data.poly, _moments(np.array([0.0]), np.array([1.0]), mu, phase, 4)[:, 0],
-                        axes=1)
+    proj = _polynomial_projection(data.poly, mu, phase)
     prof = data._profile()
     if prof is not None:
         proj = proj + _profile_projection(prof[0], prof[1], mu, phase)
@@ -1007,14 +1157,16 @@ def perpendicular_values(sub: SubProblem, mu: _Array) -> Perpendicular:
     big_e = np.exp(-2.0 * lam * d)
     c0, s0 = 1.0 + big_e, -np.expm1(-2.0 * lam * d)
     half = np.exp(-lam * d)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        bop = _data_operator(sub, lam, a, b, c0, s0)
-        at_edge = (a * c0 + b * s0) / bop
-        flux_edge = k * lam * (a * s0 + b * c0) / bop
-        at_opp = 2.0 * a * half / bop
-        flux_opp = -2.0 * k * lam * b * half / bop
-        integral = (a * s0 + b * np.expm1(-lam * d) ** 2) / (lam * bop)
-    if mu.size and mu[0] == 0.0:
+    bop = _data_operator(sub, lam, a, b, c0, s0)
+    zero = bool(mu.size and mu[0] == 0.0)
+    if zero:  # the zero root is the linear mode below
+        bop = np.where(mu == 0.0, 1.0, bop)
+    at_edge = (a * c0 + b * s0) / bop
+    flux_edge = k * lam * (a * s0 + b * c0) / bop
+    at_opp = 2.0 * a * half / bop
+    flux_opp = -2.0 * k * lam * b * half / bop
+    integral = (a * s0 + b * np.expm1(-lam * d) ** 2) / (_nonzero(lam) * bop)
+    if zero:
         y0, b0p = _linear_mode(sub)
         slope = float(y0(np.array(1.0)) - y0(np.array(0.0)))  # dY/du
         at_edge[0] = float(y0(np.array(d))) / b0p
@@ -1041,78 +1193,155 @@ class TailConstants:
 
 
 def tail_constants(sub: SubProblem) -> TailConstants:
+    """V1 = |f(0)| + |f(1)| + TV f and V2 = |f'(0)| + |f'(1)| + TV f' of the edge data, with
+    the total variations bounded as in `EdgeData.variations`."""
     d = sub.data
-    f0, f1 = abs(float(d(np.array(0.0)))), abs(float(d(np.array(1.0))))
-    tv0, tv1 = d.variations()
-    v2 = abs(d.derivative(0.0, 0)) + abs(d.derivative(1.0, 1)) + tv1
-    return TailConstants(f0 + f1 + tv0, f0, f1, v2)
+    c = np.zeros(5)
+    c[:d.poly.size] = d.poly
+    dc = np.zeros(5)
+    dc[:4] = c[1:] * _POWERS[1:]
+    # control polygons of f and f' (Bernstein, degree 32): TV <= sum of |steps|
+    b = _TO_BERNSTEIN @ np.array((c, dc)).T
+    tv0, tv1 = np.abs(b[1:] - b[:-1]).sum(axis=0)
+    f0, f1 = float(c[0]), float(c.sum())
+    g0, g1 = float(dc[0]), float(dc.sum())
+    prof = d._profile()
+    if prof is not None:
+        slopes = np.diff(prof[1]) / np.diff(prof[0])
+        f0, f1 = f0 + float(prof[1][0]), f1 + float(prof[1][-1])
+        g0, g1 = g0 + float(slopes[0]), g1 + float(slopes[-1])
+        tv0 += float(np.abs(np.diff(prof[1])).sum())
+        tv1 += float(np.abs(np.diff(slopes)).sum())
+    f0, f1 = abs(f0), abs(f1)
+    return TailConstants(f0 + f1 + float(tv0), f0, f1, abs(g0) + abs(g1) + float(tv1))
 
 
-def _geometric_sum(p: int, n: _Array, tau: _Array) -> _Array:
-    """Upper bound of sum_{m >= n} exp(-m pi tau) / m^p (inf where it diverges)."""
-    e = np.exp(-n * math.pi * tau)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        geo = e / (n**p * -np.expm1(-math.pi * tau))
-    geo = np.where(tau > 0.0, geo, np.inf)
-    if p >= 2:
-        integral = e * (1.0 / n**p + 1.0 / ((p - 1) * n ** (p - 1)))
-        return np.minimum(geo, integral)
-    return geo
+class _TailParams(NamedTuple):
+    """Constants of `tail_bound` for one or several sub-problems, shaped (S, 1, 1) to broadcast
+    against (S, points, ladder). `biot_*` parametrise |cos phi| <= min(1, Bi / (n pi)) at the
+    ends: inf for a fixed end (factor 1), 0 for an insulated end (factor 0)."""
+
+    length: _Array
+    depth: _Array
+    conductivity: _Array
+    film: _Array
+    v1: _Array
+    v2: _Array
+    f_start: _Array
+    f_end: _Array
+    biot_start: _Array
+    biot_end: _Array
+    is_d: _Array
+    is_n: _Array
+
+
+def _tail_params(subs: list[SubProblem], consts: list[TailConstants]) -> _TailParams:
+    def biot(end: tuple[str, float]) -> float:
+        kind, bi = end
+        return math.inf if kind == "fixed" else 0.0 if kind == "insulated" else bi
+
+    table = np.array([(s.length, s.depth, s.conductivity, s.film, c.v1, c.v2, c.f_start,
+                       c.f_end, biot(s.start), biot(s.end), s.kind == "D", s.kind == "N")
+                      for s, c in zip(subs, consts, strict=True)], dtype=float).reshape(-1, 12)
+    cols = [table[:, i].reshape(-1, 1, 1) for i in range(12)]
+    return _TailParams(*cols[:10], cols[10] > 0.0, cols[11] > 0.0)
+
+
+def _tail_core(p: _TailParams, terms: _Array, t: _Array) -> _Array:
+    """`tail_bound` for stacked sub-problems: t (S, Q) in m and terms either (M,) for every
+    point or (S, Q, M) per point -> (S, Q, M) in K."""
+    pi = math.pi
+    n = np.asarray(terms, float)
+    t = np.asarray(t, float)[..., None]
+    L, d = p.length, p.depth
+    inv_n = 1.0 / n
+    inv_n2 = inv_n * inv_n
+    tau = t / L
+    with np.errstate(over="ignore"):
+        # 1 / (1 - e^{-pi tau}); a huge finite stand-in at tau = 0, where only the integral-test
+        # routes are finite (no 0 * inf)
+        inv_q = 1.0 / np.maximum(-np.expm1(-pi * tau), 1e-300)
+        e = np.exp(-pi * tau * n)
+        # sum_{m >= N} e^{-m pi tau} / m^p <= e^{-N pi tau} min(1 / (N^p (1 - e^{-pi tau})),
+        # 1 / N^p + 1 / ((p - 1) N^(p-1))) (geometric series; integral test for p >= 2)
+        g1 = inv_q * inv_n
+        g2 = np.minimum(inv_q * inv_n2, inv_n2 + inv_n)
+        e_n = (p.f_start * np.minimum(1.0, p.biot_start * inv_n / pi)
+               + p.f_end * np.minimum(1.0, p.biot_end * inv_n / pi)) / pi
+        body = np.minimum(p.v1 / pi * g1, e_n * g1 + p.v2 / pi**2 * g2)
+        if not p.is_d.all():
+            g3 = np.minimum(inv_q * (inv_n2 * inv_n), inv_n2 * inv_n + 0.5 * inv_n2)
+            flux_route = L / (p.conductivity * pi) * np.minimum(p.v1 / pi * g2,
+                                                                e_n * g2 + p.v2 / pi**2 * g3)
+            conv_route = body / (p.conductivity * pi * n / L + p.film)
+            body = np.where(p.is_d, body, np.where(p.is_n, flux_route,
+                                                   np.minimum(flux_route, conv_route)))
+        # F <= 2 (1 + e^{-2 pi (depth - t) / L}) / (1 - e^{-2 N pi depth / L}) (N >= 1)
+        fac = 2.0 * (1.0 + np.exp(-2.0 * pi * (d - t) / L)) / -np.expm1(-2.0 * pi * n * d / L)
+        return fac * e * body
 
 
 def tail_bound(sub: SubProblem, consts: TailConstants, terms: _Array, t: _Array) -> _Array:
     """Bound on |sum_{n > N} c_n X_n R_n(t)|, K, for each N in `terms` and each t.
 
     Tail modes have mu_n >= (n - 1) pi >= N pi. With |X_n| <= 1, |c_n| from `TailConstants` and
-    |R_n(t)| <= F e^{-mu t / L} D(mu), F = (1 + e^{-2 N pi (depth - t)/L}) / (1 - e^{-2 N pi
+    |R_n(t)| <= F e^{-mu t / L} D(mu), F = (1 + e^{-2 pi (depth - t)/L}) / (1 - e^{-2 N pi
     depth / L}), D = 1 (fixed-temperature data), L / (k mu) (flux data), 1 / (k mu / L + h)
-    (convection data), the tail is a sum of e^{-m pi tau} / m^p, tau = t / L, bounded by
-    `_geometric_sum`. Returns an array (len(t), len(terms)).
+    (convection data), the tail is a sum of e^{-m pi tau} / m^p, tau = t / L, bounded by a
+    geometric series or the integral test. Returns an array (len(t), len(terms)). The bound does
+    not increase with t (0 <= t <= depth): each factor F e^{-N pi tau} and 1 / (1 - e^{-pi tau})
+    does not.
     """
-    n = np.asarray(terms, float)[None, :]
-    t = np.asarray(t, float)[:, None]
-    tau = t / sub.length
-    L, k = sub.length, sub.conductivity
-    pi = math.pi
-    fac = 2.0 * (1.0 + np.exp(-2.0 * n * pi * (sub.depth - t) / L)) / -np.expm1(
-        -2.0 * n * pi * sub.depth / L)
-
-    def cos_factor(end: tuple[str, float]) -> _Array:
-        kind, bi = end
-        if kind == "fixed":
-            return np.ones_like(n)
-        if kind == "insulated":
-            return np.zeros_like(n)
-        return np.minimum(1.0, bi / (n * pi))
-
-    e_n = consts.f_start * cos_factor(sub.start) + consts.f_end * cos_factor(sub.end)
-
-    def routes(extra: int) -> _Array:
-        # extra = 0: D = 1; extra = 1: D = L / (k pi m)
-        s = {p: _geometric_sum(p, n, tau) for p in (1 + extra, 2 + extra)}
-        r1 = consts.v1 / pi * s[1 + extra]
-        with np.errstate(invalid="ignore"):
-            r2 = e_n / pi * s[1 + extra] + consts.v2 / pi**2 * s[2 + extra]
-        r2 = np.where(np.isnan(r2), np.inf, r2)
-        return np.minimum(r1, r2)
-
-    with np.errstate(over="ignore", invalid="ignore"):
-        if sub.kind == "D":
-            body = routes(0)
-        elif sub.kind == "N":
-            body = L / (k * pi) * routes(1)
-        else:
-            body = np.minimum(L / (k * pi) * routes(1), routes(0) / (k * n * pi / L + sub.film))
-        out = fac * body
-    return np.where(np.isnan(out), np.inf, out)
+    return _tail_core(_tail_params([sub], [consts]), terms, np.asarray(t, float)[None, :])[0]
 
 
+@lru_cache(maxsize=16)
 def _ladder(max_terms: int) -> _Array:
-    """Candidate term counts: 1..8 then about 25 % steps, ending at max_terms."""
+    """Candidate term counts: 1..8 then about 25 % steps, ending at max_terms (read-only;
+    cached per max_terms, at most 16 entries)."""
     vals = list(range(1, 9))
     while vals[-1] < max_terms:
         vals.append(int(math.ceil(vals[-1] * 1.25)))
-    return np.array(sorted({min(v, max_terms) for v in vals}), dtype=int)
+    out = np.array(sorted({min(v, max_terms) for v in vals}), dtype=int)
+    out.setflags(write=False)
+    return out
+
+
+def _pick(bounds: _Array, ladder: _Array, budget: float) -> tuple[_Array, _Array]:
+    """Smallest ladder count whose bound is <= budget along the last axis (else the last)."""
+    ok = bounds <= budget
+    idx = np.where(ok.any(axis=-1), ok.argmax(axis=-1), ladder.size - 1)
+    flat = bounds.reshape(-1, ladder.size)[np.arange(idx.size), idx.ravel()]
+    return ladder[idx], flat.reshape(idx.shape)
+
+
+@lru_cache(maxsize=16)
+def _coarse_ladder(size: int) -> _Array:
+    """Every 4th ladder index (3, 7, ...) and the last (read-only; cached per size)."""
+    out = np.unique(np.append(np.arange(3, size, 4), size - 1))
+    out.setflags(write=False)
+    return out
+
+
+def _pick_coarse_fine(p: _TailParams, ladder: _Array, t: _Array,
+                      budget: float) -> tuple[_Array, _Array]:
+    """`_pick` over the whole ladder in two passes: the bound falls with the count, so the
+    first coarse entry meeting the budget brackets the first entry that does, which is then
+    found among the (at most 3) entries below it."""
+    coarse = _coarse_ladder(ladder.size)
+    cb = _tail_core(p, ladder[coarse], t)
+    ok = cb <= budget
+    k = np.where(ok.any(axis=-1), ok.argmax(axis=-1), coarse.size - 1)
+    hi = coarse[k]
+    fine = np.maximum(hi[..., None] - np.arange(3, 0, -1), 0)
+    fb = _tail_core(p, ladder[fine], t)
+    okf = fb <= budget
+    j = okf.argmax(axis=-1)
+    take = okf.any(axis=-1)
+    idx = np.where(take, fine.reshape(-1, 3)[np.arange(j.size), j.ravel()].reshape(j.shape), hi)
+    cflat = cb.reshape(-1, coarse.size)[np.arange(k.size), k.ravel()].reshape(k.shape)
+    fflat = fb.reshape(-1, 3)[np.arange(j.size), j.ravel()].reshape(j.shape)
+    return ladder[idx], np.where(take, fflat, cflat)
 
 
 def choose_terms(sub: SubProblem, consts: TailConstants, t: _Array, budget: float,
@@ -1123,86 +1352,459 @@ def choose_terms(sub: SubProblem, consts: TailConstants, t: _Array, budget: floa
     bound is the (larger) error estimate achieved.
     """
     ladder = _ladder(max_terms)
-    bounds = tail_bound(sub, consts, ladder, t)
-    ok = bounds <= budget
-    idx = np.where(ok.any(axis=1), ok.argmax(axis=1), ladder.size - 1)
-    return ladder[idx], bounds[np.arange(len(idx)), idx]
+    return _pick(tail_bound(sub, consts, ladder, t), ladder, budget)
 
 
 def _buckets(terms: _Array) -> list[tuple[int, _Array]]:
-    """Group indices by term count rounded up to a power of two (or max), few groups.
+    """Group the indices with terms > 0 by count rounded up to a power of two (one group when
+    the counts are all <= 64 or within a factor 2): (largest count, indices) per group. The
+    sums mask each point's modes beyond its own count, so grouping only saves work."""
+    pos = np.flatnonzero(terms > 0)
+    if pos.size == 0:
+        return []
+    sel = terms[pos]
+    hi, lo = int(sel.max()), int(sel.min())
+    if hi <= 64 or 2 * lo > hi:
+        return [(hi, pos)]
+    key = np.ceil(np.log2(sel))
+    return [(int(terms[pos[key == kv]].max()), pos[key == kv]) for kv in np.unique(key)]
 
-    Each group is evaluated with its largest count: more terms than a point needs only lowers
-    its tail, so the bound reported for the point still holds.
+
+class SeriesWeights(NamedTuple):
+    """Per-mode summation constants of a sub-problem (all arrays per mode).
+
+    U(sigma, t) = sum_n sin(mu_n sigma + phi_n) (p_n e^{-lam_n t} + q_n e^{-lam_n (2 depth - t)})
+    + alpha + beta (depth - t), the last two from the zero root's linear mode (0 without one).
     """
-    out = []
-    key = np.where(terms > 0, np.ceil(np.log2(np.maximum(terms, 1))), -1)
-    for kv in np.unique(key):
-        if kv < 0:
-            continue
-        sel = np.nonzero(key == kv)[0]
-        out.append((int(terms[sel].max()), sel))
-    return out
+
+    mu: _Array
+    phase: _Array
+    lam: _Array
+    p: _Array
+    q: _Array
+    alpha: float
+    beta: float
+    depth: float
 
 
-def sum_series(sub: SubProblem, modes: Modes, sigma: _Array, t: _Array, terms: _Array) -> _Array:
-    """U(sigma_p, t_p) = sum_{n <= N} c_n X_n(sigma_p) R_n(t_p) at scattered points.
+def series_weights(sub: SubProblem, modes: Modes) -> SeriesWeights:
+    """c_n R_n(t) = c_n (a cosh(lam u) + b sinh(lam u)) / B[Y_n], u = depth - t, with cosh and
+    sinh scaled by 2 e^{-lam depth}: cosh -> e^{-lam t} + e^{-lam (2 depth - t)}, sinh ->
+    e^{-lam t} - e^{-lam (2 depth - t)}, so only exponentials of non-positive arguments appear
+    (the same scaling as `perpendicular_ratio`)."""
+    mu, c = modes.mu, modes.coef
+    lam = mu / sub.length
+    a, b = _kind_ab(*sub.opposite, lam)
+    d = sub.depth
+    c0, s0 = 1.0 + np.exp(-2.0 * lam * d), -np.expm1(-2.0 * lam * d)
+    bop = _data_operator(sub, lam, a, b, c0, s0)
+    if mu.size and mu[0] == 0.0:
+        bop = np.where(mu == 0.0, 1.0, bop)  # the zero root is the linear mode below
+    scale = c / bop
+    p, q = scale * (a + b), scale * (a - b)
+    alpha = beta = 0.0
+    if mu.size and mu[0] == 0.0:
+        y0, bop = _linear_mode(sub)
+        a0 = float(y0(np.array(0.0)))
+        alpha, beta = c[0] * a0 / bop, c[0] * (float(y0(np.array(1.0))) - a0) / bop
+        p[0] = q[0] = 0.0
+    return SeriesWeights(mu, modes.phase, lam, p, q, float(alpha), float(beta), d)
 
-    Points are grouped by term count (`_buckets`) and each group is one product of the sines
-    and perpendicular ratios with the coefficient vector.
-    """
+
+def _perpendicular_block(w: SeriesWeights, nt: int, t: _Array, terms: _Array) -> _Array:
+    """W[p, n] = c_n R_n(t_p) for n < nt, zero beyond each point's own count."""
+    tt = t[:, None]
+    r = w.p[:nt] * np.exp(-w.lam[:nt] * tt) + w.q[:nt] * np.exp(-w.lam[:nt] * (2.0 * w.depth - tt))
+    if int(terms.min()) < nt:
+        r *= np.arange(nt) < terms[:, None]
+    return r
+
+
+def _add_linear(w: SeriesWeights, out: _Array, t: _Array, terms: _Array) -> _Array:
+    if w.alpha == 0.0 and w.beta == 0.0:
+        return out
+    lin = np.where(terms > 0, w.alpha + w.beta * (w.depth - t), 0.0)
+    return out + (lin if out.ndim == 1 else lin[:, None])
+
+
+def _sum_points(w: SeriesWeights, sigma: _Array, t: _Array, terms: _Array) -> _Array:
+    """sum_{n < terms_p} at scattered points (sigma_p, t_p): one product per group of points."""
     out = np.zeros(sigma.shape)
     for nt, sel in _buckets(terms):
+        mu, ph = w.mu[:nt], w.phase[:nt]
         step = max(1, _BLOCK // nt)
-        mu, ph, c = modes.mu[:nt], modes.phase[:nt], modes.coef[:nt]
         for i in range(0, sel.size, step):
-            p = sel[i:i + step]
-            x = np.sin(sigma[p, None] * mu[None, :] + ph[None, :])
-            r = perpendicular_ratio(sub, mu, t[p])
-            out[p] = (x * r) @ c
-    return out
+            idx = sel[i:i + step]
+            r = _perpendicular_block(w, nt, t[idx], terms[idx])
+            out[idx] = np.einsum("ij,ij->i", np.sin(sigma[idx, None] * mu + ph), r)
+    return _add_linear(w, out, t, terms)
 
 
-def sum_series_grid(sub: SubProblem, modes: Modes, sigma: _Array, t: _Array,
-                    terms: _Array) -> _Array:
-    """U on the tensor grid (t rows, sigma columns): per row group one matrix product
-    (R[rows] * c) @ X, the sines X computed once."""
+def _sine_table(mu: _Array, phase: _Array, sigma: _Array) -> _Array:
+    """S[j, n] = sin(mu_n sigma_j + phi_n).
+
+    On evenly spaced sigma the columns are built by angle addition (sin(a + b) = sin a cos b +
+    cos a sin b), doubling the filled columns each step: one sine and one cosine per mode and
+    step instead of one sine per entry (a sine costs 15-25 ns here, a product about 1 ns); the
+    rounding error grows by about one ulp per step.
+    """
+    m = sigma.size
+    if m < 8:
+        return np.sin(sigma[:, None] * mu + phase)
+    step = (sigma[-1] - sigma[0]) / (m - 1)
+    if not step > 0.0 or float(np.abs(np.diff(sigma) - step).max()) > 1e-13:
+        return np.sin(sigma[:, None] * mu + phase)
+    s = np.empty((m, mu.size))
+    c = np.empty((m, mu.size))
+    tmp = np.empty((m // 2 + 1, mu.size))
+    th = mu * sigma[0] + phase
+    s[0], c[0] = np.sin(th), np.cos(th)
+    done = 1
+    while done < m:
+        k = min(done, m - done)
+        ang = mu * (done * step)
+        sa, ca = np.sin(ang), np.cos(ang)
+        bs, bc, tp = s[done:done + k], c[done:done + k], tmp[:k]
+        np.multiply(s[:k], ca, out=bs)
+        np.multiply(c[:k], sa, out=tp)
+        bs += tp
+        np.multiply(c[:k], ca, out=bc)
+        np.multiply(s[:k], sa, out=tp)
+        bc -= tp
+        done += k
+    return s
+
+
+def _sum_rows(w: SeriesWeights, sigma: _Array, t: _Array, terms: _Array) -> _Array:
+    """U on the tensor grid (t rows, sigma columns) with terms chosen per row: the sines once
+    per column block, then one matrix product per group of rows."""
     out = np.zeros((t.size, sigma.size))
     nmax = int(terms.max(initial=0))
     if nmax <= 0:
         return out
-    xs = np.sin(modes.mu[:nmax, None] * sigma[None, :] + modes.phase[:nmax, None])
-    for nt, rows in _buckets(terms):
-        step = max(1, _BLOCK // nt)
-        for i in range(0, rows.size, step):
-            r = rows[i:i + step]
-            out[r] = (perpendicular_ratio(sub, modes.mu[:nt], t[r]) * modes.coef[None, :nt]) \
-                @ xs[:nt]
+    groups = _buckets(terms)
+    cstep = max(1, _BLOCK // nmax)
+    for j in range(0, sigma.size, cstep):
+        cols = slice(j, j + cstep)
+        xs = _sine_table(w.mu[:nmax], w.phase[:nmax], sigma[cols])
+        for nt, rows in groups:
+            rstep = max(1, _BLOCK // nt)
+            for i in range(0, rows.size, rstep):
+                r = rows[i:i + rstep]
+                out[r, cols] = _perpendicular_block(w, nt, t[r], terms[r]) @ xs[:, :nt].T
+    return _add_linear(w, out, t, terms)
+
+
+def sum_series(sub: SubProblem, modes: Modes, sigma: _Array, t: _Array, terms: _Array) -> _Array:
+    """U(sigma_p, t_p) = sum_{n <= N_p} c_n X_n(sigma_p) R_n(t_p) at scattered points."""
+    return _sum_points(series_weights(sub, modes), np.asarray(sigma, float),
+                       np.asarray(t, float), np.asarray(terms))
+
+
+def sum_series_grid(sub: SubProblem, modes: Modes, sigma: _Array, t: _Array,
+                    terms: _Array) -> _Array:
+    """U on the tensor grid (t rows, sigma columns), terms chosen per row."""
+    return _sum_rows(series_weights(sub, modes), np.asarray(sigma, float), np.asarray(t, float),
+                     np.asarray(terms))
+
+
+class ModeStack(NamedTuple):
+    """The first `count` modes of several sub-problems, stacked (S, count).
+
+    Eigenvalues mu, phases phi (X_n = sin(mu_n sigma + phi_n)), norms, coefficients c_n; the
+    perpendicular weights of `SeriesWeights` (p, q, and far = e^{-2 lam depth}); and for the flows
+    the opposite-edge weights (a, b), the data operator B[Y_n] and the end values of X_n.
+    Columns (S, 1): linear-mode constants alpha, beta and the depth.
+    """
+
+    count: int
+    mu: _Array
+    phase: _Array
+    norm: _Array
+    coef: _Array
+    lam: _Array
+    p: _Array
+    q: _Array
+    far: _Array
+    s0: _Array
+    a: _Array
+    b: _Array
+    bop: _Array
+    cos0: _Array
+    sin0: _Array
+    cos1: _Array
+    sin1: _Array
+    alpha: _Array
+    beta: _Array
+    depth: _Array
+    linear: bool
+
+
+def _end_biot(end: tuple[str, float]) -> float:
+    """Bi of a convective end, 0 otherwise (sin 2 phi = 0 at fixed and insulated ends)."""
+    return end[1] if end[0] == "convective" else 0.0
+
+
+def stack_modes(subs: list[SubProblem], count: int) -> ModeStack:
+    """Eigenvalues -> coefficients -> summation weights for all sub-problems at once.
+
+    The same stages as `edge_eigenvalues`, `edge_coefficients` and `series_weights`, done on
+    (S, count) arrays so that their cost does not grow with the number of series.
+    """
+    nser = len(subs)
+    col = np.array([(s.length, s.depth, s.conductivity, s.film, _end_biot(s.start),
+                     _end_biot(s.end), s.opposite[1], s.kind == "D", s.kind == "N",
+                     s.opposite[0] == "fixed", s.opposite[0] == "insulated",
+                     s.start[0] == "convective", s.end[0] == "convective",
+                     0.5 * math.pi * (s.start[0] == "insulated"), s.start[0] == "fixed",
+                     s.end[0] == "fixed")
+                    for s in subs], dtype=float).reshape(nser, 16, 1)
+    length, depth, k, film, bi0, bi1, beta_o = (col[:, i] for i in range(7))
+    is_d, is_n, opp_fixed, opp_ins, conv0, conv1 = (col[:, i] > 0.0 for i in range(7, 13))
+    const0, fixed0, fixed1 = col[:, 13], col[:, 14] > 0.0, col[:, 15] > 0.0
+    mu = np.array([pair_roots(s.start[0], s.end[0], s.start[1], s.end[1], count)
+                   for s in subs]).reshape(nser, count)
+    zero = [i for i in range(nser) if mu[i, 0] == 0.0]
+    mu_nz = np.where(mu == 0.0, 1.0, mu) if zero else mu
+    # phases (`pair_phase`): 0 fixed, pi/2 insulated, arctan(mu / Bi) convective
+    phase = np.where(conv0, np.arctan2(mu, bi0), const0) if conv0.any() else \
+        np.broadcast_to(const0, mu.shape).copy()
+    # norms (`edge_eigenvalues`): 1/2 + (sin 2 phi_l + sin 2 phi_r) / (4 mu)
+    mu2 = mu_nz * mu_nz
+    norm = 0.5 + (bi0 / (mu2 + bi0 * bi0) + bi1 / (mu2 + bi1 * bi1)) * (0.5 * mu / mu_nz) \
+        if (bi0.any() or bi1.any()) else np.full(mu.shape, 0.5)
+    for i in zero:
+        norm[i, 0] = 1.0
+    # end values of X_n: at sigma = 0 from the phase (cos phi = Bi / r, sin phi = mu / r,
+    # r = (mu^2 + Bi^2)^(1/2), for a convective end); at sigma = 1 from the eigenvalue equation
+    # mu + phi_l + phi_r = n pi: cos(mu + phi_l) = (-1)^n cos phi_r, sin = -(-1)^n sin phi_r
+    def end_cos_sin(conv: _Array, fixed: _Array, bi: _Array) -> tuple[_Array, _Array]:
+        if conv.any():
+            r = np.sqrt(mu * mu + bi * bi)
+            r = np.where(r > 0.0, r, 1.0)
+            return (np.where(conv, bi / r, np.where(fixed, 1.0, 0.0)),
+                    np.where(conv, mu / r, np.where(fixed, 0.0, 1.0)))
+        return (np.broadcast_to(np.where(fixed, 1.0, 0.0), mu.shape),
+                np.broadcast_to(np.where(fixed, 0.0, 1.0), mu.shape))
+
+    cos0, sin0 = end_cos_sin(conv0, fixed0, bi0)
+    cr, sr = end_cos_sin(conv1, fixed1, bi1)
+    sign = np.where(np.arange(1, count + 1) % 2 == 0, 1.0, -1.0)  # (-1)^n
+    cos1, sin1 = sign * cr, -sign * sr
+    # coefficients (`_polynomial_projection`, `_profile_projection`): the closed form with the
+    # profiles' end values and end slopes added to the polynomial's, and one sine per kink
+    poly = np.zeros((nser, 5))
+    for i, s in enumerate(subs):
+        poly[i, :s.data.poly.size] = s.data.poly
+    d0 = poly * _DERIVATIVES_AT_0
+    d1 = poly @ _DERIVATIVES_AT_1.T
+    profiles = [(i, s.data._profile()) for i, s in enumerate(subs) if s.data._profile()]
+    for i, (brk, vals) in profiles:
+        slopes = np.diff(vals) / np.diff(brk)
+        d0[i, :2] += (vals[0], slopes[0])
+        d1[i, :2] += (vals[-1], slopes[-1])
+    inv = 1.0 / mu_nz
+    i2 = inv * inv
+    ca1 = inv * (-d1[:, :1] + i2 * (d1[:, 2:3] - i2 * d1[:, 4:]))
+    ca0 = inv * (-d0[:, :1] + i2 * (d0[:, 2:3] - i2 * d0[:, 4:]))
+    proj = ca1 * cos1 + i2 * (d1[:, 1:2] - i2 * d1[:, 3:4]) * sin1 - ca0 * cos0 \
+        - i2 * (d0[:, 1:2] - i2 * d0[:, 3:4]) * sin0
+    for i, (brk, vals) in profiles:
+        kinks = np.diff(np.diff(vals) / np.diff(brk))
+        if kinks.size:
+            step = max(1, _BLOCK // count)
+            for j in range(0, kinks.size, step):
+                proj[i] -= kinks[j:j + step] @ np.sin(brk[1:-1][j:j + step, None] * mu[i]
+                                                      + phase[i]) * i2[i]
+    small = np.nonzero(mu < 2.0)
+    if small[0].size:
+        s_nodes = 0.5 * (1.0 + _GL_X)
+        f_nodes = (_monomials(s_nodes) @ poly.T).T  # (S, 12)
+        vals = np.sin(mu[small][:, None] * s_nodes + phase[small][:, None])
+        proj[small] = np.einsum("ij,ij->i", vals, f_nodes[small[0]] * (0.5 * _GL_W))
+        for i, (brk, pv) in profiles:
+            sel = small[1][small[0] == i]
+            if sel.size:
+                proj[i, sel] += _profile_projection(brk, pv, mu[i, sel], phase[i, sel])
+    coef = proj / norm
+    # summation weights (`series_weights`)
+    lam = mu / length
+    if (~(opp_fixed | opp_ins)).any():
+        a_conv = lam / (lam + np.where(beta_o > 0.0, beta_o, 1.0))
+        a = np.where(opp_fixed, 0.0, np.where(opp_ins, 1.0, a_conv))
+        b = np.where(opp_fixed, 1.0, np.where(opp_ins, 0.0, 1.0 - a_conv))
+    else:
+        a = np.where(opp_fixed, 0.0, 1.0) + 0.0 * lam
+        b = 1.0 - a
+    far = np.exp(-2.0 * lam * depth)
+    s0 = -np.expm1(-2.0 * lam * depth)
+    val = a * (1.0 + far) + b * s0
+    flux = k * lam * (a * s0 + b * (1.0 + far))
+    bop = np.where(is_d, val, np.where(is_n, flux, flux + film * val))
+    for i in zero:
+        bop[i, 0] = 1.0  # the zero root is the linear mode below
+    scale = coef / bop
+    p, q = scale * (a + b), scale * (a - b)
+    alpha, beta = np.zeros((nser, 1)), np.zeros((nser, 1))
+    for i in zero:
+        y0, b0p = _linear_mode(subs[i])
+        a0 = float(y0(np.array(0.0)))
+        alpha[i, 0] = coef[i, 0] * a0 / b0p
+        beta[i, 0] = coef[i, 0] * (float(y0(np.array(1.0))) - a0) / b0p
+        p[i, 0] = q[i, 0] = 0.0
+    return ModeStack(count, mu, phase, norm, coef, lam, p, q, far, s0, a, b, bop, cos0, sin0, cos1,
+                     sin1, alpha, beta, depth, bool(zero))
+
+
+def _stack_flow_terms(stack: ModeStack, subs: list[SubProblem],
+                      rows: list[tuple[int, str, str]]) -> _Array:
+    """`flow_terms` for rows (series index, edge, kind) of a stack: (R, count)."""
+    mu, lam, a, b, bop = stack.mu, stack.lam, stack.a, stack.b, stack.bop
+    zero = bool(stack.linear) or bool((mu[:, 0] == 0.0).any())
+    mu_nz = np.where(mu == 0.0, 1.0, mu) if zero else mu
+    half = np.sqrt(stack.far)  # e^{-lam depth}
+    # int_0^1 X_n = (cos phi - cos(mu + phi)) / mu
+    along = (stack.cos0 - stack.cos1) / mu_nz
+    out = np.empty((len(rows), stack.count))
+    for r, (i, name, kind) in enumerate(rows):
+        sub = subs[i]
+        f = _FRAMES[sub.edge]
+        k, length, d = sub.conductivity, sub.length, sub.depth
+        if name == sub.edge:
+            if kind == "D":
+                terms = along[i] * k * lam[i] * (a[i] * stack.s0[i]
+                                                 + b[i] * (1.0 + stack.far[i])) / bop[i]
+            else:
+                terms = along[i] * (a[i] * (1.0 + stack.far[i]) + b[i] * stack.s0[i]) / bop[i]
+            terms = terms * length
+        elif name == f.opposite:
+            terms = along[i] * (2.0 * length / bop[i]) * half[i] * (
+                -k * lam[i] * b[i] if kind == "D" else a[i])
+        else:
+            lam_nz = np.where(lam[i] == 0.0, 1.0, lam[i]) if zero else lam[i]
+            integral = (a[i] * stack.s0[i] + b[i] * np.expm1(-lam[i] * d) ** 2) \
+                / (lam_nz * bop[i])
+            at_start = name == f.start
+            if kind == "D":
+                cos_end = stack.cos0[i] if at_start else stack.cos1[i]
+                terms = (-1.0 if at_start else 1.0) * k / length * mu[i] * cos_end * integral
+            else:
+                terms = (stack.sin0[i] if at_start else stack.sin1[i]) * integral
+        if mu[i, 0] == 0.0:
+            terms = terms.copy()
+            terms[0] = _linear_flow_term(sub, name, kind, stack.phase[i, 0])
+        out[r] = stack.coef[i] * terms
     return out
+
+
+def _linear_flow_term(sub: SubProblem, name: str, kind: str, phase: float) -> float:
+    """The zero root's flow term (`flow_terms`, mu = 0), before the coefficient."""
+    modes = Modes(np.zeros(1), np.array([phase]), np.ones(1), np.ones(1))
+    return float(flow_terms(sub, modes, [(name, kind)])[0, 0])
+
+
+def _sum_stacked(stack: ModeStack, sigma: _Array, t: _Array, terms: _Array) -> _Array:
+    """sum over series s and modes n < terms[s, p] at scattered points: sigma, t, terms (S, P)
+    -> (P,). Each (series, point) pair is one entry; entries are grouped by their own count
+    (`_buckets`). e^{-lam (2 depth - t)} = e^{-2 lam depth} / e^{-lam t} costs no second
+    exponential and cannot overflow: with t <= depth the quotient is <= e^{-lam t}, and the
+    numerator underflows to 0 whenever the denominator does."""
+    npts = sigma.shape[1]
+    out = np.zeros(npts)
+    s_idx, p_idx = np.nonzero(terms > 0)
+    if not s_idx.size:
+        return out
+    own = terms[s_idx, p_idx]
+    sig, tt = sigma[s_idx, p_idx], t[s_idx, p_idx]
+    for nt, sel in _buckets(own):
+        step = max(1, _BLOCK // nt)
+        for i in range(0, sel.size, step):
+            e = sel[i:i + step]
+            rows = s_idx[e]
+            cols = slice(0, nt)
+            e1 = np.exp(np.maximum(-stack.lam[rows, cols] * tt[e, None], -700.0))
+            r = stack.p[rows, cols] * e1 + stack.q[rows, cols] * (stack.far[rows, cols] / e1)
+            if int(own[e].min()) < nt:
+                r *= np.arange(nt) < own[e, None]
+            x = np.sin(sig[e, None] * stack.mu[rows, cols] + stack.phase[rows, cols])
+            out += np.bincount(p_idx[e], weights=np.einsum("ij,ij->i", x, r), minlength=npts)
+    if stack.linear:
+        out += np.where(terms > 0, stack.alpha + stack.beta * (stack.depth - t), 0.0).sum(axis=0)
+    return out
+
+
+def _stack_row(stack: ModeStack, i: int) -> SeriesWeights:
+    return SeriesWeights(stack.mu[i], stack.phase[i], stack.lam[i], stack.p[i], stack.q[i],
+                         float(stack.alpha[i, 0]), float(stack.beta[i, 0]),
+                         float(stack.depth[i, 0]))
 
 
 # =========================================================================== the assembled model
 
 
 def _root_count(n: int, max_terms: int) -> int:
-    return int(min(max_terms, max(64, 1 << max(0, int(n - 1).bit_length()))))
+    return int(min(max_terms, max(256, 1 << max(0, int(n - 1).bit_length()))))
 
 
 class _Series:
-    """One sub-problem with its modes computed on demand (instance cache, per solve)."""
+    """One sub-problem with its mode tables computed on demand (instance cache, per solve).
+
+    Tables are keyed by their length (256, 512, ... or max_terms): a sum over the first n modes
+    takes the smallest table already built that holds n modes, else builds one of the next
+    power of two; the flow series ask for exact lengths, so they do not depend on which
+    evaluations ran first.
+    """
 
     def __init__(self, sub: SubProblem, consts: TailConstants, max_terms: int) -> None:
         self.sub = sub
         self.consts = consts
         self.max_terms = max_terms
-        self._modes: Modes | None = None
+        self._tables: dict[int, tuple[Modes, SeriesWeights]] = {}
+
+    def table(self, count: int) -> tuple[Modes, SeriesWeights]:
+        """Modes and summation weights of exactly `count` modes."""
+        hit = self._tables.get(count)
+        if hit is None:
+            mu, ph, norm = edge_eigenvalues(self.sub, count)
+            modes = Modes(mu, ph, norm, edge_coefficients(self.sub, mu, ph, norm))
+            hit = (modes, series_weights(self.sub, modes))
+            self._tables[count] = hit
+        return hit
+
+    def _count_for(self, n: int) -> int:
+        have = [c for c in self._tables if c >= n]
+        return min(have) if have else _root_count(n, self.max_terms)
 
     def modes(self, n: int) -> Modes:
-        if self._modes is None or self._modes.count < n:
-            count = _root_count(n, self.max_terms)
-            mu, ph, norm = edge_eigenvalues(self.sub, count)
-            self._modes = Modes(mu, ph, norm, edge_coefficients(self.sub, mu, ph, norm))
-        return self._modes
+        return self.table(self._count_for(n))[0]
+
+    def weights(self, n: int) -> SeriesWeights:
+        return self.table(self._count_for(n))[1]
+
+
+class _GridValues(NamedTuple):
+    """Temperatures on a tensor grid with their error bounds as row and column parts:
+    bound(j, i) = rows[j] + cols[i] + skipped off the fixed-temperature edges, 0 on them."""
+
+    temp: _Array
+    rows: _Array
+    cols: _Array
+    free_rows: _Array
+    free_cols: _Array
+    most: int
+    skipped: float
+
+    @property
+    def error(self) -> float:
+        """The largest bound over the grid, K."""
+        if not (self.free_rows.any() and self.free_cols.any()):
+            return 0.0
+        return float(self.rows[self.free_rows].max() + self.cols[self.free_cols].max()
+                     + self.skipped)
+
+    def bounds(self) -> _Array:
+        err = self.rows[:, None] + self.cols[None, :] + self.skipped
+        return np.where(self.free_rows[:, None] & self.free_cols[None, :], err, 0.0)
 
 
 class PlateSeries:
@@ -1224,7 +1826,7 @@ class PlateSeries:
         self.plan = plan_corners(cond, 1e-9 * max([1.0] + [abs(v) for v in temps]))
         self.particular = particular_solution(problem, cond)
         self.corner = corner_polynomial(problem, cond, self.particular, self.plan)
-        self.base = _Base(self.particular, self.corner)
+        self.base = _Base.build(self.particular, self.corner)
         self.series: list[_Series] = []
         #: bound on the series left out as negligible (K), added to every error bound
         self.skipped = 0.0
@@ -1246,150 +1848,187 @@ class PlateSeries:
             else:
                 self.skipped += mag
         self.budget = self.atol / max(1, len(self.series))
+        self._tail = _tail_params([s.sub for s in self.series], [s.consts for s in self.series])
+        self._ladder = _ladder(problem.max_terms)
+        # (sigma, t) of each series' frame as affine maps of (x, y, 1)
+        self._affine = np.array([_affine_frame(s.sub.edge, problem.width, problem.height)
+                                 for s in self.series]).reshape(-1, 2, 3)
+        self._depth = np.array([[s.sub.depth] for s in self.series])
+        self._stacks: dict[tuple[int, tuple[int, ...]], ModeStack] = {}
+        # (s, t) in m of the fixed-temperature edges' frames, for points on them
+        self._fixed_names = [n for n in EDGE_NAMES if cond[n].kind == "D"]
+        self._fixed_frames = np.array([_affine_frame(n, problem.width, problem.height)
+                                       for n in self._fixed_names]).reshape(-1, 2, 3)
+        for i, n in enumerate(self._fixed_names):  # s exactly x or y
+            self._fixed_frames[i, 0] = (1.0, 0.0, 0.0) if _FRAMES[n].along_x else (0.0, 1.0, 0.0)
+
+    # ------------------------------------------------------------------ truncation
+    def choose(self, t: _Array) -> tuple[_Array, _Array]:
+        """Truncation rule for every series at once: t (S, Q) distances from each series' data
+        edge, m -> (terms, tail bound K), both (S, Q)."""
+        return _pick_coarse_fine(self._tail, self._ladder, t, self.budget)
+
+    def _local(self, x: _Array, y: _Array) -> tuple[_Array, _Array]:
+        """(sigma, t) of points in each series' frame, (S, P) each, clipped to the plate."""
+        st = self._affine @ np.array((x, y, np.ones(x.shape)))
+        return (np.minimum(np.maximum(st[:, 0], 0.0), 1.0),
+                np.minimum(np.maximum(st[:, 1], 0.0), self._depth))
+
+    def _stack(self, count: int, subset: tuple[int, ...] | None = None) -> ModeStack:
+        """Stacked modes of exactly `count` terms for the series in `subset` (all: None);
+        cached per solve."""
+        subset = tuple(range(len(self.series))) if subset is None else subset
+        stack = self._stacks.get((count, subset))
+        if stack is None:
+            stack = stack_modes([self.series[i].sub for i in subset], count)
+            self._stacks[(count, subset)] = stack
+        return stack
+
+    def _stack_for(self, n: int) -> ModeStack:
+        """Stacked modes of all series holding at least n terms (the smallest such stack
+        already built, else one of `_root_count(n)` terms)."""
+        full = tuple(range(len(self.series)))
+        have = [c for c, sub in self._stacks if sub == full and c >= n]
+        return self._stack(min(have) if have else _root_count(n, self.problem.max_terms))
+
+    def _weights_for(self, i: int, n: int) -> SeriesWeights:
+        """Summation weights of series i holding at least n terms: a row of a stack built
+        already, else the series' own table."""
+        full = tuple(range(len(self.series)))
+        have = [c for c, sub in self._stacks if sub == full and c >= n]
+        if have and min(have) <= _root_count(n, self.problem.max_terms):
+            return _stack_row(self._stack(min(have)), i)
+        return self.series[i].weights(n)
 
     # ------------------------------------------------------------------ evaluation
     def _fixed_edges(self, x: _Array, y: _Array) -> tuple[_Array, _Array]:
-        """Mask of points on fixed-temperature edges and their exact boundary values."""
+        """Mask of points on fixed-temperature edges and their exact boundary values (at a
+        corner where two meet, the mean of the two)."""
         w, h = self.problem.width, self.problem.height
-        tol = 1e-12 * max(w, h)
-        on = np.zeros(x.shape, bool)
-        total = np.zeros(x.shape)
-        count = np.zeros(x.shape)
-        for name in EDGE_NAMES:
-            c = self.cond[name]
-            if c.kind != "D":
-                continue
-            s, t = _to_local(name, x, y, w, h)
-            hit = np.abs(t) <= tol
-            if np.any(hit):
-                total[hit] += c.temperature(s[hit])
-                count[hit] += 1
-                on |= hit
-        with np.errstate(invalid="ignore", divide="ignore"):
-            value = np.where(count > 0, total / np.maximum(count, 1), 0.0)
-        return on, value
+        exact = np.zeros(x.shape)
+        if not self._fixed_frames.size:
+            return np.zeros(x.shape, bool), exact
+        st = self._fixed_frames @ np.array((x, y, np.ones(x.shape)))  # (F, 2, P): s, t in m
+        hit = np.abs(st[:, 1]) <= 1e-12 * max(w, h)
+        on = hit.any(axis=0)
+        if on.any():
+            count = hit.sum(axis=0)
+            for i, name in enumerate(self._fixed_names):
+                if hit[i].any():
+                    exact[hit[i]] += self.cond[name].temperature(st[i, 0, hit[i]])
+            exact = np.where(on, exact / np.maximum(count, 1), 0.0)
+        return on, exact
+
+    def _evaluate(self, x: _Array, y: _Array, terms: _Array | None,
+                  bound: _Array | None = None) -> tuple[_Array, _Array, _Array]:
+        """Temperatures at points with the given terms (S, P) (None: chosen per point by the
+        truncation rule), their bounds (the given per-series bounds, or the rule's) and the
+        terms used (S, P; 0 on fixed-temperature edges, which return their data)."""
+        on, exact = self._fixed_edges(x, y)
+        temp = self.base.value(x, y)
+        err = np.zeros(x.shape)
+        if not self.series:
+            terms = np.zeros((0, x.size), int)
+        else:
+            sig, t = self._local(x, y)
+            if terms is None:
+                terms, bound = self.choose(t)
+            terms = np.where(on, 0, terms)
+            if bound is not None:
+                err = np.where(on, 0.0, bound.sum(axis=0))
+            if terms.size and terms.max() > 0:
+                temp = temp + _sum_stacked(self._stack_for(int(terms.max())), sig, t, terms)
+        temp = np.where(on, exact, temp)
+        return temp, np.where(on, 0.0, err + self.skipped), terms
 
     def temperature(self, x: _Array, y: _Array,
                     fixed_terms: list[int] | None = None) -> tuple[_Array, _Array, int]:
         """Temperatures (degC), error bounds (K) and the most terms used, at points (x, y).
 
-        Terms are chosen per point by `choose_terms`; `fixed_terms` (one count per series)
-        skips that choice for fast repeated evaluation (the error bounds are then not computed
-        and returned as NaN).
+        Terms are chosen per point by the truncation rule (`choose_terms`, all series at once);
+        `fixed_terms` (one count per series) skips that choice (the error bounds are then not
+        computed and returned as NaN).
         """
         x = np.asarray(x, float).ravel()
         y = np.asarray(y, float).ravel()
+        if fixed_terms is None:
+            temp, err, terms = self._evaluate(x, y, None)
+            return temp, err, int(terms.max(initial=0))
+        fixed = np.repeat(np.asarray(fixed_terms, dtype=int).reshape(-1, 1), x.size, axis=1)
+        temp, _, terms = self._evaluate(x, y, fixed)
+        return temp, np.full(x.shape, np.nan), int(terms.max(initial=0))
+
+    def _grid(self, gx: _Array, gy: _Array) -> _GridValues:
+        """Temperatures on the tensor grid with terms chosen per row (per series)."""
         w, h = self.problem.width, self.problem.height
-        on, exact = self._fixed_edges(x, y)
-        temp = self.base.value(x, y)
-        err = np.zeros(x.shape) if fixed_terms is None else np.full(x.shape, np.nan)
+        gx = np.asarray(gx, float)
+        gy = np.asarray(gy, float)
+        tol = 1e-12 * max(w, h)
+        temp = self.base.grid(gx, gy)
+        rows, cols = np.zeros(gy.size), np.zeros(gx.size)
+        # grid lines lying on fixed-temperature edges take the data and carry no error
+        on_row = {"bottom": np.abs(gy) <= tol, "top": np.abs(gy - h) <= tol}
+        on_col = {"left": np.abs(gx) <= tol, "right": np.abs(gx - w) <= tol}
+        free_rows = ~np.logical_or.reduce([m for n, m in on_row.items()
+                                           if self.cond[n].kind == "D"] + [np.zeros(gy.size, bool)])
+        free_cols = ~np.logical_or.reduce([m for n, m in on_col.items()
+                                           if self.cond[n].kind == "D"] + [np.zeros(gx.size, bool)])
         most = 0
-        for i, ser in enumerate(self.series):
-            sub = ser.sub
-            s, t = _to_local(sub.edge, x, y, w, h)
-            t = np.maximum(t, 0.0)
-            if fixed_terms is None:
-                terms, bound = choose_terms(sub, ser.consts, t, self.budget,
-                                            self.problem.max_terms)
-                err = err + np.where(on, 0.0, bound)
-            else:
-                terms = np.full(x.shape, fixed_terms[i])
-            terms = np.where(on, 0, terms)
-            if terms.size and terms.max() > 0:
-                modes = ser.modes(int(terms.max()))
-                temp = temp + sum_series(sub, modes, np.clip(s / sub.length, 0.0, 1.0), t, terms)
-                most = max(most, int(terms.max()))
-        temp = np.where(on, exact, temp)
-        return temp, np.where(on, 0.0, err + self.skipped), most
+        if self.series:
+            across = []
+            for ser in self.series:
+                f = _FRAMES[ser.sub.edge]
+                a = gy if f.along_x else gx
+                across.append(np.clip(ser.sub.depth - a if f.far else a, 0.0, ser.sub.depth))
+            q = max(a.size for a in across)
+            tq = np.array([np.pad(a, (0, q - a.size), constant_values=a[-1] if a.size else 0.0)
+                           for a in across])
+            terms_all, bound_all = self.choose(tq)
+            for i, ser in enumerate(self.series):
+                f = _FRAMES[ser.sub.edge]
+                t = across[i]
+                free = free_rows if f.along_x else free_cols
+                terms = np.where(free, terms_all[i, :t.size], 0)
+                bound = np.where(free, bound_all[i, :t.size], 0.0)
+                top = int(terms.max(initial=0))
+                if top > 0:
+                    along = gx if f.along_x else gy
+                    sigma = np.clip(along / ser.sub.length, 0.0, 1.0)
+                    u = _sum_rows(self._weights_for(i, top), sigma, t, terms)
+                    temp += u if f.along_x else u.T
+                    most = max(most, top)
+                if f.along_x:
+                    rows = rows + bound
+                else:
+                    cols = cols + bound
+        self._fix_grid_edges(temp, gx, gy, on_row, on_col)
+        return _GridValues(temp, rows, cols, free_rows, free_cols, most, self.skipped)
 
-    def terms_in_box(self, x0: float, x1: float, y0: float, y1: float) -> list[int]:
-        """Per series, the most terms any point of the box [x0, x1] x [y0, y1] needs."""
-        w, h = self.problem.width, self.problem.height
-        xs, ys = np.array([x0, x1, x0, x1]), np.array([y0, y0, y1, y1])
-        out = []
-        for ser in self.series:
-            _, t = _to_local(ser.sub.edge, xs, ys, w, h)
-            t = np.array([max(float(t.min()), 0.0)])
-            out.append(int(choose_terms(ser.sub, ser.consts, t, self.budget,
-                                        self.problem.max_terms)[0][0]))
-        return out
-
-    def point_function(self, terms: list[int]) -> Callable[[_Array, _Array], _Array]:
-        """A fast evaluator T(x, y) (arrays) with fixed term counts (one per series).
-
-        Same sums as `temperature` with the per-mode constants precomputed, for the repeated
-        calls of a local search; fixed-temperature edges return their data.
-        """
-        w, h = self.problem.width, self.problem.height
-        parts = []
-        for ser, n in zip(self.series, terms, strict=True):
-            if n <= 0:
+    def _fix_grid_edges(self, temp: _Array, gx: _Array, gy: _Array,
+                        on_row: dict[str, _Array], on_col: dict[str, _Array]) -> None:
+        """Fixed-temperature edges take their data; a corner where two meet, the mean."""
+        lines: dict[str, tuple[_Array, _Array]] = {}
+        for name, mask in (*on_row.items(), *on_col.items()):
+            c = self.cond[name]
+            if c.kind != "D" or not mask.any():
                 continue
-            sub = ser.sub
-            modes = ser.modes(n)
-            mu, ph, c = modes.mu[:n], modes.phase[:n], modes.coef[:n]
-            lam = mu / sub.length
-            a, b = _kind_ab(*sub.opposite, lam)
-            c0, s0 = 1.0 + np.exp(-2.0 * lam * sub.depth), -np.expm1(-2.0 * lam * sub.depth)
-            with np.errstate(divide="ignore", invalid="ignore"):
-                scale = c / _data_operator(sub, lam, a, b, c0, s0)
-            linear: tuple[float, float] | None = None
-            if mu[0] == 0.0:
-                y0, bop = _linear_mode(sub)
-                a0 = float(y0(np.array(0.0)))
-                linear = (c[0] * a0 / bop, c[0] * (float(y0(np.array(1.0))) - a0) / bop)
-                scale = scale.copy()
-                scale[0] = 0.0
-            parts.append((sub, mu, ph, lam, scale * a, scale * b, linear))
-
-        def temperature(x: _Array, y: _Array) -> _Array:
-            x = np.atleast_1d(np.asarray(x, float))
-            y = np.atleast_1d(np.asarray(y, float))
-            on, exact = self._fixed_edges(x, y)
-            total = self.base.value(x, y)
-            for sub, mu, ph, lam, ca, cb, linear in parts:
-                sv, tv = _to_local(sub.edge, x, y, w, h)
-                tv = np.maximum(tv, 0.0)[:, None]
-                u = sub.depth - tv
-                e_t = np.exp(-lam * tv)
-                ch = e_t + np.exp(-lam * (sub.depth + u))
-                sh = -e_t * np.expm1(-2.0 * lam * u)
-                xs = np.sin(mu * np.clip(sv / sub.length, 0.0, 1.0)[:, None] + ph)
-                total = total + np.sum(xs * (ca * ch + cb * sh), axis=1)
-                if linear is not None:
-                    total = total + linear[0] + linear[1] * u[:, 0]
-            return np.where(on, exact, total)
-
-        return temperature
+            along = gx if _FRAMES[name].along_x else gy
+            lines[name] = (mask, c.temperature(along))
+        for name, (mask, vals) in lines.items():
+            if _FRAMES[name].along_x:
+                temp[mask, :] = vals
+            else:
+                temp[:, mask] = vals[:, None]
+        for (hor, ver) in _CORNERS:
+            if hor in lines and ver in lines:
+                (rmask, hvals), (cmask, vvals) = lines[hor], lines[ver]
+                ri, ci = np.flatnonzero(rmask), np.flatnonzero(cmask)
+                temp[np.ix_(ri, ci)] = 0.5 * (hvals[ci][None, :] + vvals[ri][:, None])
 
     def grid(self, gx: _Array, gy: _Array) -> tuple[_Array, _Array, int]:
         """Temperatures (ny, nx), per-point error bounds and most terms on a tensor grid."""
-        w, h = self.problem.width, self.problem.height
-        xx, yy = np.meshgrid(gx, gy)
-        on, exact = self._fixed_edges(xx.ravel(), yy.ravel())
-        on, exact = on.reshape(xx.shape), exact.reshape(xx.shape)
-        temp = self.base.value(xx, yy)
-        err = np.zeros(xx.shape)
-        most = 0
-        for ser in self.series:
-            sub = ser.sub
-            f = _FRAMES[sub.edge]
-            along = gx if f.along_x else gy
-            across = gy if f.along_x else gx
-            t = np.maximum((h if f.along_x else w) - across if f.far else across, 0.0)
-            terms, bound = choose_terms(sub, ser.consts, t, self.budget, self.problem.max_terms)
-            if sub.kind == "D":  # the data edge's own row is returned exactly
-                terms = np.where(t <= 1e-12 * max(w, h), 0, terms)
-                bound = np.where(terms == 0, 0.0, bound)
-            if terms.max(initial=0) > 0:
-                modes = ser.modes(int(terms.max()))
-                u = sum_series_grid(sub, modes, np.clip(along / sub.length, 0.0, 1.0), t, terms)
-                temp = temp + (u if f.along_x else u.T)
-                most = max(most, int(terms.max()))
-            err = err + (bound[:, None] if f.along_x else bound[None, :])
-        temp = np.where(on, exact, temp)
-        err = np.where(on, 0.0, err + self.skipped)
-        return temp, err, most
+        g = self._grid(gx, gy)
+        return g.temp, g.bounds(), g.most
 
     # ------------------------------------------------------------------ flows
     def flow_scale(self) -> float:
@@ -1406,15 +2045,15 @@ class PlateSeries:
 
         Flux edges carry their data exactly; fixed-temperature edges integrate -k dT/dt of the
         base and of each series; convection edges integrate h (T_amb - T). Each series is summed
-        in blocks of 4x more terms until its partial sums over the last half of the block vary
-        by less than rtol times `flow_scale` (or max_terms is reached). Edges touching a singular
-        corner are None (unbounded), as are the rare edges whose flow series would only converge
-        conditionally next to one.
+        by `settle_flow_series` (partial sums settling to rtol times `flow_scale`, or a checked
+        Richardson extrapolation). Edges touching a singular corner are None (unbounded), as are
+        the rare edges whose flow series would only converge conditionally next to one.
         """
         p = self.problem
         w, h, k = p.width, p.height, p.conductivity
         tol = rtol * self.flow_scale() / max(1, len(self.series))
         out: dict[str, float | None] = {}
+        base_part: dict[str, float] = {}
         gl_x, gl_w = _GL6_X, _GL6_W  # exact for the base's polynomials (degree <= 4)
         for name in EDGE_NAMES:
             c = self.cond[name]
@@ -1428,59 +2067,59 @@ class PlateSeries:
             s = 0.5 * length * (1.0 + gl_x)
             x, y = _edge_point(name, s, w, h)
             nx, ny = _FRAMES[name].normal
-            gx, gy = self.base.gradient(x, y)
             if c.kind == "D":
-                total = float(np.sum(0.5 * length * gl_w * k * (gx * nx + gy * ny)))
+                gx, gy = self.base.gradient(x, y)
+                base_part[name] = float(np.sum(0.5 * length * gl_w * k * (gx * nx + gy * ny)))
             else:
-                total = float(np.sum(0.5 * length * gl_w * self.base.value(x, y)))
-            for ser in self.series:
-                scale = 1.0 if c.kind == "D" else c.film
-                total += self._sum_flow_series(ser, name, c.kind, tol / scale)
+                base_part[name] = float(np.sum(0.5 * length * gl_w * self.base.value(x, y)))
+            out[name] = None
+        sums = self._flow_series_sums(list(base_part), tol)
+        for name, total in base_part.items():
+            c = self.cond[name]
+            for i in range(len(self.series)):
+                total += sums[(i, name)]
+            length = _lengths(name, w, h)[0]
             out[name] = total if c.kind == "D" else c.film * (c.ambient * length - total)
         return out
 
-    def _sum_flow_series(self, ser: _Series, name: str, kind: str, tol: float) -> float:
-        """Sum one flow series in blocks of 256, 1024, 4096, ... terms.
-
-        Stops when the partial sums over the block's last half vary by <= tol, or when the
-        differences of the partial sums S(N/64), S(N/16), S(N/4), S(N) shrink by a steady factor
-        r in [3, 20] (an algebraic tail ~ N^-p, the usual case next to a corner) and the
-        Richardson correction d / (r - 1) times the change of r (at least 1 %) is <= tol; then
-        the corrected value is returned. Otherwise sums max_terms terms.
-        """
+    def _flow_series_sums(self, names: list[str], tol: float) -> dict[tuple[int, str], float]:
+        """Every series' flow sum through every edge in `names`, settled together from 256
+        terms, growing 2 or 4 times (`settle_flow_series`) up to max_terms, until each one is
+        accepted."""
         max_terms = self.problem.max_terms
+        pending = [(i, n) for i in range(len(self.series)) for n in names]
+        out: dict[tuple[int, str], float] = {}
         count = min(256, max_terms)
-        while True:
-            part = np.cumsum(self._series_edge_terms(ser, name, kind, count))
-            spread = float(np.max(np.abs(part[count // 2:] - part[-1]), initial=0.0))
-            if spread <= tol:
-                return float(part[-1])
-            if count >= 1024:
-                # S(N/64), S(N/16), S(N/4), S(N): differences shrinking by a steady factor r
-                # mean an algebraic tail ~ N^-p, r = 4^p; its sum is d / (r - 1) (Richardson)
-                s = part[[count // 64 - 1, count // 16 - 1, count // 4 - 1, count - 1]]
-                d = np.diff(s)
-                if d[1] != 0.0 and d[2] != 0.0:
-                    r0, r1 = d[0] / d[1], d[1] / d[2]
-                    misfit = max(abs(r1 / r0 - 1.0), 1e-2)
-                    if 3.0 <= r1 <= 20.0 and abs(d[2] / (r1 - 1.0)) * misfit <= tol:
-                        return float(s[3] + d[2] / (r1 - 1.0))
-            if count >= max_terms:
-                return float(part[-1])
-            count = min(4 * count, max_terms)
+        while pending:
+            subset = tuple(sorted({i for i, _ in pending}))
+            stack = self._stack(count, subset)
+            local = {i: j for j, i in enumerate(subset)}
+            rows = [(local[i], n, self.cond[n].kind) for i, n in pending]
+            tols = [tol / (1.0 if kind == "D" else self.cond[n].film) for _, n, kind in rows]
+            values, done, growth = settle_flow_series(
+                _stack_flow_terms(stack, [self.series[i].sub for i in subset], rows),
+                np.array(tols), last=count >= max_terms)
+            for key, v, ok in zip(pending, values, done, strict=True):
+                if ok:
+                    out[key] = float(v)
+            pending = [key for key, ok in zip(pending, done, strict=True) if not ok]
+            count = min(int(growth[~done].max(initial=2)) * count, max_terms)
+        return out
 
-    def _series_edge_terms(self, ser: _Series, name: str, kind: str, count: int) -> _Array:
-        """Terms of int over edge `name` of q_in (kind D, W/m) or of U (kind R, K m)."""
-        sub = ser.sub
-        modes = ser.modes(count)
-        mu, ph, c = modes.mu[:count], modes.phase[:count], modes.coef[:count]
-        perp = perpendicular_values(sub, mu)
-        f = _FRAMES[sub.edge]
-        k, length = sub.conductivity, sub.length
-        with np.errstate(divide="ignore", invalid="ignore"):
-            # int_0^1 X_n = (cos phi - cos(mu + phi)) / mu = 2 sin(mu/2 + phi) sin(mu/2) / mu
-            along = np.where(mu == 0.0, np.sin(ph),
-                             2.0 * np.sin(0.5 * mu + ph) * np.sin(0.5 * mu) / mu)
+
+def flow_terms(sub: SubProblem, modes: Modes, targets: list[tuple[str, str]]) -> _Array:
+    """Terms of a sub-problem's flow series through each (edge, kind) of `targets`, one row
+    each: the integral over the edge of q_in (kind D, W/m) or of U (kind R, K m)."""
+    mu, ph, c = modes.mu, modes.phase, modes.coef
+    perp = perpendicular_values(sub, mu)
+    f = _FRAMES[sub.edge]
+    k, length = sub.conductivity, sub.length
+    # int_0^1 X_n = (cos phi - cos(mu + phi)) / mu = 2 sin(mu/2 + phi) sin(mu/2) / mu
+    along = 2.0 * np.sin(0.5 * mu + ph) * np.sin(0.5 * mu) / _nonzero(mu)
+    if mu.size and mu[0] == 0.0:
+        along[0] = np.sin(ph[0])
+    out = np.empty((len(targets), mu.size))
+    for row, (name, kind) in enumerate(targets):
         if name == sub.edge:
             terms = along * (perp.flux_at_edge if kind == "D" else perp.at_edge) * length
         elif name == f.opposite:
@@ -1492,7 +2131,53 @@ class PlateSeries:
                 terms = sign * k / length * mu * np.cos(mu * at + ph) * perp.integral
             else:
                 terms = np.sin(mu * at + ph) * perp.integral
-        return c * terms
+        out[row] = c * terms
+    return out
+
+
+def _richardson(s: _Array, p: _Array) -> _Array:
+    """Extrapolate partial sums at N, 2N, 4N, 8N (columns) whose tails go like
+    a N^-p + b N^-(p+1) + c N^-(p+2): eliminate one power per sweep (Richardson)."""
+    for j in range(3):
+        f = 2.0 ** (p + j)[:, None]
+        s = (f * s[:, 1:] - s[:, :-1]) / (f - 1.0)
+    return s[:, 0]
+
+
+def settle_flow_series(terms: _Array, tol: _Array,
+                       last: bool) -> tuple[_Array, _Array, _Array]:
+    """Sum each row of `terms` (R, N) if it has settled: (values, accepted, growth).
+
+    A row is accepted when its partial sums over the last half of the block vary by <= tol
+    (the sum is returned), or when the differences of the partial sums at N/32, N/16, ..., N
+    shrink by steady factors 2^p (p an integer >= 1: an algebraic tail a N^-p + ..., the usual
+    case next to a corner) and two Richardson extrapolations, from the levels up to N and up to
+    N/2, agree to tol (the one up to N is returned). With `last` every row is accepted with its
+    partial sum. `growth` suggests the next block: 2N where the tail is steady and the two
+    extrapolations differ by at most 2^(p+2) tol (their difference falls like N^-(p+3)), else 4N.
+    """
+    n = terms.shape[1]
+    parts = np.cumsum(terms, axis=1)
+    final = parts[:, -1]
+    ok = np.abs(parts[:, n // 2:] - final[:, None]).max(axis=1) <= tol
+    values = final.copy()
+    growth = np.full(final.shape, 4)
+    if n >= 64 and not ok.all():
+        s = parts[:, (n // 32) * (1 << np.arange(6)) - 1]
+        d = s[:, 1:] - s[:, :-1]
+        with np.errstate(all="ignore"):
+            r = d[:, :-1] / d[:, 1:]
+            rate = np.log2(r)
+            p = np.rint(rate[:, -1])
+            steady = (np.all(r[:, 1:] > 1.5, axis=1) & (p >= 1.0)
+                      & (np.abs(rate[:, -1] - p) < 0.1) & (np.abs(rate[:, -2] - p) < 0.2))
+            upper = _richardson(s[:, 2:], p)
+            lower = _richardson(s[:, 1:5], p)
+            rich = ~ok & steady & (np.abs(upper - lower) <= tol)
+            growth = np.where(steady & (np.abs(upper - lower) <= tol * 2.0 ** (p + 2)), 2, 4)
+        values = np.where(rich, upper, values)
+        ok = ok | rich
+    return values, ok | last, growth
 
 
 # =========================================================================== extremes and safety
@@ -1522,102 +2207,264 @@ def _boundary_candidates(model: PlateSeries) -> list[tuple[float, float, float]]
         s = c.profile_s
         if len(s) == 2 and c.profile_t[0] == c.profile_t[1]:
             s = np.array([0.5 * (s[0] + s[1])])
+        temps = c.profile_t if s.size == c.profile_s.size else c.profile_t[:1]
         x, y = _edge_point(name, s, p.width, p.height)
-        for xi, yi, si in zip(x, y, s, strict=True):
-            out.append((float(c.temperature(np.array(si))), float(xi), float(yi)))
+        out += [(float(ti), float(xi), float(yi)) for ti, xi, yi in zip(temps, x, y, strict=True)]
     return out
 
 
-def _refine(model: PlateSeries, x0: float, y0: float, sign: float, hx: float,
-            hy: float) -> tuple[float, float, float]:
-    """Local search for a maximum (sign = +1) or minimum (sign = -1) near the sample (x0, y0).
+class _Samples(NamedTuple):
+    """Temperatures on a tensor grid of sample points (x columns, y rows)."""
 
-    On a non-fixed edge the search runs along the edge (scipy bounded scalar minimisation);
-    inside, over the neighbouring cells (scipy L-BFGS-B with bounds). The search uses the term
-    counts the box needs, fixed; the point found is evaluated again with terms chosen by the
-    truncation rule. Returns (T, x, y).
+    gx: _Array
+    gy: _Array
+    temp: _Array
+
+
+def _sample_lines(model: PlateSeries) -> list[tuple[_Array, _Array]]:
+    """(x, y) tensor grids of `EXTREMES_SAMPLES` points along the edges where the extremes of
+    a harmonic T can lie.
+
+    Without generation T is harmonic: its extremes lie on the boundary (maximum principle), on
+    fixed-temperature edges at their data, and not inside an insulated (or zero-flux) edge
+    (Hopf's lemma: there the outward derivative would be non-zero), nor at a corner of two such
+    edges (even reflection makes it an interior point). So only flux and convection edges are
+    sampled.
+    """
+    p = model.problem
+    w, h, n = p.width, p.height, EXTREMES_SAMPLES
+
+    def active(name: str) -> bool:
+        c = model.cond[name]
+        return c.kind == "R" or (c.kind == "N" and c.flux != 0.0)
+
+    out = []
+    ys = [v for name, v in (("bottom", 0.0), ("top", h)) if active(name)]
+    if ys:
+        out.append((np.linspace(0.0, w, n), np.array(ys)))
+    xs = [v for name, v in (("left", 0.0), ("right", w)) if active(name)]
+    if xs:
+        out.append((np.array(xs), np.linspace(0.0, h, n)))
+    return out
+
+
+def _spacing(v: _Array) -> float:
+    return float(v[1] - v[0]) if v.size > 1 else 0.0
+
+
+def _edge_line(samples: _Samples, name: str, width: float, height: float) -> _Samples | None:
+    """The samples lying on edge `name` (one row or column), if the set holds that line."""
+    tol = 1e-12 * max(width, height)
+    gx, gy, t = samples.gx, samples.gy, samples.temp
+    f = _FRAMES[name]
+    if f.along_x:
+        rows = np.flatnonzero(np.abs(gy - (height if f.far else 0.0)) <= tol)
+        if not rows.size or gx.size < 2:
+            return None
+        return _Samples(gx, gy[rows[:1]], t[rows[:1]])
+    cols = np.flatnonzero(np.abs(gx - (width if f.far else 0.0)) <= tol)
+    if not cols.size or gy.size < 2:
+        return None
+    return _Samples(gx[cols[:1]], gy, t[:, cols[:1]])
+
+
+class _Seed(NamedTuple):
+    """A sample to refine: maximise sign * T near (x, y) within +-(hx, hy) (0: that
+    coordinate stays), with the sample values around it at +-hx, +-hy (3 x 3, rows in y; or
+    3 along the moving axis; None when it does not move)."""
+
+    x: float
+    y: float
+    sign: float
+    hx: float
+    hy: float
+    stencil: _Array | None
+
+
+def _seed(model: PlateSeries, s: _Samples, sign: float) -> _Seed:
+    """The best sample of a set. On an edge it moves only along the edge; at a corner or on a
+    fixed-temperature edge (exact data) it does not move."""
+    p = model.problem
+    w, h = p.width, p.height
+    j, i = np.unravel_index(int(np.argmax(sign * s.temp)), s.temp.shape)
+    x, y = float(s.gx[i]), float(s.gy[j])
+    tol = 1e-12 * max(w, h)
+    hx = 0.0 if (x <= tol or x >= w - tol) else _spacing(s.gx)
+    hy = 0.0 if (y <= tol or y >= h - tol) else _spacing(s.gy)
+    if model._fixed_edges(np.array([x]), np.array([y]))[0][0]:
+        hx = hy = 0.0
+    inside_x = 0 < i < s.gx.size - 1
+    inside_y = 0 < j < s.gy.size - 1
+    stencil = None
+    if hx > 0.0 and hy > 0.0 and inside_x and inside_y:
+        stencil = s.temp[j - 1:j + 2, i - 1:i + 2]
+    elif hx > 0.0 and hy == 0.0 and inside_x:
+        stencil = s.temp[j, i - 1:i + 2]
+    elif hy > 0.0 and hx == 0.0 and inside_y:
+        stencil = s.temp[j - 1:j + 2, i]
+    if stencil is None:
+        hx = hy = 0.0
+    return _Seed(x, y, sign, hx, hy, stencil)
+
+
+class _Found(NamedTuple):
+    """A candidate extreme: temperature degC, position m, error bound K, most terms."""
+
+    temperature: float
+    x: float
+    y: float
+    bound: float
+    terms: int
+
+
+def _refine(model: PlateSeries, seeds: list[_Seed]) -> list[_Found]:
+    """Local refinement of extremes near samples, all seeds in one evaluation.
+
+    Each seed's box (+-hx, +-hy inside the plate, stopping half way to a fixed-temperature
+    edge, where that edge's series has no finite count) gets, per series, the term count of the
+    truncation rule at the box's smallest distance from that series' data edge; the tail bound
+    does not increase with that distance, so the count and its bound hold anywhere in the box.
+    A Newton step on the quadratic model of the sample stencil (parabolic vertex along an edge,
+    2 x 2 Hessian inside; only where the model is concave, and limited to the stencil) gives a
+    centre; the seed and a stencil 4 times smaller around that centre are evaluated with the
+    box counts, and the best point is returned with the box bound (K, summed over the series).
+    With samples h apart the vertex is within O(h^2) of a smooth extreme, so the value missed
+    is O(h^4) and the smaller stencil makes up for a poor model.
     """
     p = model.problem
     w, h = p.width, p.height
-    tol = 1e-12 * max(w, h)
-    on_x = abs(x0) <= tol or abs(x0 - w) <= tol
-    on_y = abs(y0) <= tol or abs(y0 - h) <= tol
-    lo_x, hi_x = max(0.0, x0 - hx), min(w, x0 + hx)
-    lo_y, hi_y = max(0.0, y0 - hy), min(h, y0 + hy)
-    if on_x and on_y:
-        return float(model.temperature(np.array([x0]), np.array([y0]))[0][0]), x0, y0
-    if on_x:
-        lo_x = hi_x = x0
-    if on_y:
-        lo_y = hi_y = y0
-    evaluate = model.point_function(model.terms_in_box(lo_x, hi_x, lo_y, hi_y))
-
-    def temp(x: float, y: float) -> float:
-        return float(evaluate(np.array([x]), np.array([y]))[0])
-
-    if on_x or on_y:
-        if on_y:
-            res = optimize.minimize_scalar(lambda v: -sign * temp(v, y0),
-                                           bounds=(lo_x, hi_x), method="bounded",
-                                           options={"xatol": 1e-4 * hx})
-            xb, yb = float(res.x), y0
-        else:
-            res = optimize.minimize_scalar(lambda v: -sign * temp(x0, v),
-                                           bounds=(lo_y, hi_y), method="bounded",
-                                           options={"xatol": 1e-4 * hy})
-            xb, yb = x0, float(res.x)
+    k = len(seeds)
+    if not k:
+        return []
+    fixed = {n for n in EDGE_NAMES if model.cond[n].kind == "D"}
+    lo = np.array([[max(0.5 * s.x if "left" in fixed else 0.0, s.x - s.hx),
+                    max(0.5 * s.y if "bottom" in fixed else 0.0, s.y - s.hy)] for s in seeds])
+    hi = np.array([[min(0.5 * (s.x + w) if "right" in fixed else w, s.x + s.hx),
+                    min(0.5 * (s.y + h) if "top" in fixed else h, s.y + s.hy)] for s in seeds])
+    nser = len(model.series)
+    if nser:
+        cx = np.stack([lo[:, 0], hi[:, 0], lo[:, 0], hi[:, 0]], axis=1).ravel()
+        cy = np.stack([lo[:, 1], lo[:, 1], hi[:, 1], hi[:, 1]], axis=1).ravel()
+        _, t = model._local(cx, cy)
+        box_terms, box_bound = model.choose(t.reshape(nser, k, 4).min(axis=2))
     else:
-        # value and forward-difference gradient from one vectorised call (three points),
-        # stepping inwards at the box's upper bounds
-        dx, dy = 1e-7 * max(w, h), 1e-7 * max(w, h)
-
-        def fun_grad(v: _Array) -> tuple[float, _Array]:
-            sx = dx if v[0] + dx <= hi_x else -dx
-            sy = dy if v[1] + dy <= hi_y else -dy
-            f = -sign * evaluate(np.array([v[0], v[0] + sx, v[0]]),
-                                 np.array([v[1], v[1], v[1] + sy]))
-            return float(f[0]), np.array([(f[1] - f[0]) / sx, (f[2] - f[0]) / sy])
-
-        res = optimize.minimize(fun_grad, np.array([x0, y0]), jac=True, method="L-BFGS-B",
-                                bounds=[(lo_x, hi_x), (lo_y, hi_y)], options={"maxiter": 50})
-        xb, yb = float(res.x[0]), float(res.x[1])
-    found = model.temperature(np.array([x0, xb]), np.array([y0, yb]))[0]
-    return (float(found[1]), xb, yb) if sign * found[1] > sign * found[0] else \
-        (float(found[0]), x0, y0)
-
-
-def _extreme(model: PlateSeries, xs: _Array, ys: _Array, ts: _Array, sign: float,
-             hx: float, hy: float, with_data: bool = True) -> Location:
-    """Hottest (sign = +1) or coldest (-1) of the samples, refined locally, and compared with
-    the exact fixed-temperature data (`with_data`)."""
-    p = model.problem
-    i = int(np.argmax(sign * ts))
-    best = (float(ts[i]), float(xs[i]), float(ys[i]))
-    on_fixed, _ = model._fixed_edges(np.array([best[1]]), np.array([best[2]]))
-    if not on_fixed[0]:
-        best = _refine(model, best[1], best[2], sign, hx, hy)
-    if with_data:
-        for cand in _boundary_candidates(model):
-            if sign * cand[0] >= sign * best[0]:  # exact data wins ties
-                best = cand
-    return Location(best[0], describe(best[1], best[2], p.width, p.height), (best[1], best[2]))
+        box_terms, box_bound = np.zeros((0, k), int), np.zeros((0, k))
+    xs, ys = [], []
+    offsets = np.array([-0.25, 0.0, 0.25])
+    for i, s in enumerate(seeds):
+        c = np.array([s.x, s.y])
+        if s.stencil is not None:
+            c = np.clip(_newton_step(s.sign * np.ravel(s.stencil), s.hx, s.hy, c, (s.x, s.y)),
+                        lo[i], hi[i])
+        gx = np.clip(c[0] + offsets * s.hx, lo[i, 0], hi[i, 0]) if s.hx > 0.0 else c[:1]
+        gy = np.clip(c[1] + offsets * s.hy, lo[i, 1], hi[i, 1]) if s.hy > 0.0 else c[1:]
+        xs.append(np.concatenate(([s.x], np.tile(gx, gy.size))))
+        ys.append(np.concatenate(([s.y], np.repeat(gy, gx.size))))
+    sizes = [len(v) for v in xs]
+    x_all, y_all = np.concatenate(xs), np.concatenate(ys)
+    temp, _, _ = model._evaluate(x_all, y_all, box_terms[:, np.repeat(np.arange(k), sizes)])
+    on = model._fixed_edges(x_all, y_all)[0]
+    bound = box_bound.sum(axis=0) + model.skipped
+    terms = box_terms.max(axis=0, initial=0)
+    out = []
+    start = 0
+    for i, s in enumerate(seeds):
+        j = start + int(np.argmax(s.sign * temp[start:start + sizes[i]]))
+        out.append(_Found(float(temp[j]), float(x_all[j]), float(y_all[j]),
+                          0.0 if on[j] else float(bound[i]), 0 if on[j] else int(terms[i])))
+        start += sizes[i]
+    return out
 
 
-def _edge_scope(model: PlateSeries, name: str, sx: _Array, sy: _Array, st: _Array) -> Scope:
-    """Extremes along one edge from the sample grid's row or column, refined along the edge."""
-    p = model.problem
-    f = _FRAMES[name]
-    if f.along_x:
-        t = st[-1 if f.far else 0, :]
-        x, y = sx, np.full_like(sx, p.height if f.far else 0.0)
-        hx, hy = float(sx[1] - sx[0]), 0.0
+def _newton_step(f: _Array, dx: float, dy: float, centre: _Array,
+                 fallback: tuple[float, float]) -> _Array:
+    """Next centre from a stencil of sign * T (to be maximised; 3 x 3 with rows in y, or 3
+    along the moving axis): the vertex of its quadratic model when that model is concave,
+    limited to the stencil, else `fallback`."""
+    if dx > 0.0 and dy > 0.0:
+        g = np.reshape(f, (3, 3))
+        gx = (g[1, 2] - g[1, 0]) / (2.0 * dx)
+        gy = (g[2, 1] - g[0, 1]) / (2.0 * dy)
+        hxx = (g[1, 2] - 2.0 * g[1, 1] + g[1, 0]) / (dx * dx)
+        hyy = (g[2, 1] - 2.0 * g[1, 1] + g[0, 1]) / (dy * dy)
+        hxy = (g[2, 2] - g[2, 0] - g[0, 2] + g[0, 0]) / (4.0 * dx * dy)
+        det = hxx * hyy - hxy * hxy
+        if not (hxx < 0.0 and det > 0.0):
+            return np.array(fallback, float)
+        move = -np.array([hyy * gx - hxy * gy, hxx * gy - hxy * gx]) / det
+    elif dx > 0.0 or dy > 0.0:
+        curv = f[0] - 2.0 * f[1] + f[2]
+        if not curv < 0.0:
+            return np.array(fallback, float)
+        v = 0.5 * (dx if dx > 0.0 else dy) * (f[0] - f[2]) / curv
+        move = np.array([v, 0.0]) if dx > 0.0 else np.array([0.0, v])
     else:
-        t = st[:, -1 if f.far else 0]
-        x, y = np.full_like(sy, p.width if f.far else 0.0), sy
-        hx, hy = 0.0, float(sy[1] - sy[0])
-    hot = _extreme(model, x, y, t, 1.0, hx, hy, with_data=False)
-    cold = _extreme(model, x, y, t, -1.0, hx, hy, with_data=False)
-    return Scope(f"{name} edge", hot, cold)
+        return np.array(fallback, float)
+    if not np.all(np.isfinite(move)):
+        return np.array(fallback, float)
+    return centre + np.clip(move, [-dx, -dy], [dx, dy])
+
+
+class _Extremes(NamedTuple):
+    hottest: Location
+    coldest: Location
+    surfaces: list[Scope]
+    error: float
+    most: int
+
+
+def _find_extremes(model: PlateSeries, sets: list[_Samples],
+                   reported: list[tuple[_Array, _Array, _Array]], surfaces: bool) -> _Extremes:
+    """Hottest and coldest over the plate, and per convection edge when `surfaces`.
+
+    Candidates: the best samples refined locally (`_refine`), every reported value (points and
+    grid: already counted in the error estimate) and the exact fixed-temperature data (which
+    win ties). `error` and `most` cover the refined values that are reported.
+    """
+    p = model.problem
+    w, h = p.width, p.height
+    seeds: list[_Seed] = []
+    for sign in (1.0, -1.0):
+        if sets:
+            best = max(sets, key=lambda s, sg=sign: sg * float(np.max(sg * s.temp)))
+            seeds.append(_seed(model, best, sign))
+    nbody = len(seeds)
+    exposed = [n for n in EDGE_NAMES if model.cond[n].kind == "R"] if surfaces else []
+    for name in exposed:
+        line = next((ln for s in sets if (ln := _edge_line(s, name, w, h)) is not None), None)
+        if line is None:  # no sample set holds this edge: sample it alone
+            n, f = EXTREMES_SAMPLES, _FRAMES[name]
+            gx, gy = ((np.linspace(0.0, w, n), np.array([h if f.far else 0.0])) if f.along_x
+                      else (np.array([w if f.far else 0.0]), np.linspace(0.0, h, n)))
+            line = _Samples(gx, gy, model._grid(gx, gy).temp)
+        seeds += [_seed(model, line, sign) for sign in (1.0, -1.0)]
+    found = _refine(model, seeds)
+    data = [_Found(t, x, y, 0.0, 0) for t, x, y in _boundary_candidates(model)]
+    values = []
+    for xs_r, ys_r, ts_r in reported:
+        for sign in (1.0, -1.0):
+            if ts_r.size:
+                i = int(np.argmax(sign * ts_r))
+                values.append(_Found(float(ts_r[i]), float(xs_r[i]), float(ys_r[i]), 0.0, 0))
+    chosen: list[_Found] = []
+
+    def pick(sign: float, cands: list[_Found], exact: list[_Found]) -> Location:
+        best = max(cands, key=lambda c: sign * c.temperature) if cands else None
+        for cand in exact:
+            if best is None or sign * cand.temperature >= sign * best.temperature:
+                best = cand  # exact data wins ties
+        assert best is not None
+        chosen.append(best)
+        return Location(best.temperature, describe(best.x, best.y, w, h), (best.x, best.y))
+
+    body = list(zip(found[:nbody], seeds[:nbody], strict=True))
+    hottest = pick(1.0, [f for f, s in body if s.sign > 0] + values, data)
+    coldest = pick(-1.0, [f for f, s in body if s.sign < 0] + values, data)
+    scopes = [Scope(f"{name} edge", pick(1.0, [found[nbody + 2 * i]], []),
+                    pick(-1.0, [found[nbody + 2 * i + 1]], []))
+              for i, name in enumerate(exposed)]
+    return _Extremes(hottest, coldest, scopes, max([c.bound for c in chosen] + [0.0]),
+                     max([c.terms for c in chosen] + [0]))
 
 
 # =========================================================================== entry points
@@ -1678,8 +2525,13 @@ def solve_plate(problem: PlateProblem) -> PlateResult:
     so the energy balance is an independent check. Where two different fixed temperatures meet
     at a corner the two edge flows are unbounded and reported as None.
 
-    Extremes: the output grid (or a 33 x 33 sample grid) and the points, then a local bounded
-    search (scipy) around the best sample, and the exact fixed-temperature data.
+    Extremes: samples where an extreme can lie -- without generation only the flux and
+    convection edges (maximum principle and Hopf's lemma; fixed-temperature edges give their
+    data exactly), with generation a 33 x 33 grid; or the output grid -- then a few rounds of
+    a shrinking stencil with Newton steps around the best samples, evaluated with the term
+    counts (and tail bounds) of the samples' neighbourhood, compared with the reported points
+    and grid and the exact fixed-temperature data. The error estimate covers every reported
+    temperature: points, grid and extremes.
 
     References
     ----------
@@ -1695,35 +2547,45 @@ def solve_plate(problem: PlateProblem) -> PlateResult:
     warnings: list[str] = []
 
     pts = np.asarray(p.points, dtype=float).reshape(-1, 2)
-    pts = np.column_stack((np.clip(pts[:, 0], 0.0, w), np.clip(pts[:, 1], 0.0, h)))
-    point_t, point_err, most = model.temperature(pts[:, 0], pts[:, 1])
-    errs = [point_err]
+    pts = np.array((np.clip(pts[:, 0], 0.0, w), np.clip(pts[:, 1], 0.0, h))).T.reshape(-1, 2)
+    npts = pts.shape[0]
+    # where the extremes can lie (see `_sample_lines`); a fine output grid serves instead
+    fine_grid = p.grid is not None and min(p.grid) >= EXTREMES_SAMPLES
+    lines = _sample_lines(model) if p.generation == 0.0 and not fine_grid else []
+    meshes = [(np.tile(gx_l, gy_l.size).reshape(gy_l.size, gx_l.size),
+               np.repeat(gy_l, gx_l.size).reshape(gy_l.size, gx_l.size)) for gx_l, gy_l in lines]
+    # one pass for the points and the sample lines, terms chosen per point
+    temp, err, terms = model._evaluate(
+        np.concatenate([pts[:, 0]] + [m[0].ravel() for m in meshes]),
+        np.concatenate([pts[:, 1]] + [m[1].ravel() for m in meshes]), None)
+    point_t, point_err = temp[:npts], err[:npts]
+    most = int(terms[:, :npts].max(initial=0))
+    errors = [float(point_err.max(initial=0.0))]
+    reported = [(pts[:, 0], pts[:, 1], point_t)]
+    sets: list[_Samples] = []
+    start = npts
+    for (gx_l, gy_l), m in zip(lines, meshes, strict=True):
+        sets.append(_Samples(gx_l, gy_l, temp[start:start + m[0].size].reshape(m[0].shape)))
+        start += m[0].size
     gx = gy = grid_t = None
     if p.grid is not None:
         gx = np.linspace(0.0, w, int(p.grid[0]))
         gy = np.linspace(0.0, h, int(p.grid[1]))
-        grid_t, grid_err, gmost = model.grid(gx, gy)
-        errs.append(grid_err.ravel())
-        most = max(most, gmost)
-        sx, sy, st = gx, gy, grid_t
-    else:
+        grid = model._grid(gx, gy)
+        grid_t = grid.temp
+        errors.append(grid.error)
+        most = max(most, grid.most)
+        xx, yy = np.meshgrid(gx, gy)
+        reported.append((xx.ravel(), yy.ravel(), grid_t.ravel()))
+        sets.append(_Samples(gx, gy, grid_t))
+    if p.generation != 0.0 and not fine_grid:
         sx = np.linspace(0.0, w, EXTREMES_SAMPLES)
         sy = np.linspace(0.0, h, EXTREMES_SAMPLES)
-        st, sample_err, smost = model.grid(sx, sy)
-        # the samples feed the reported extremes, so their bounds count too
-        errs.append(sample_err.ravel())
-        most = max(most, smost)
-    err_all = np.concatenate(errs) if errs else np.zeros(0)
-    error_estimate = float(err_all.max(initial=0.0))
-
-    # extremes: samples (grid and points), then local refinement, then exact boundary data
-    xx, yy = np.meshgrid(sx, sy)
-    cx = np.concatenate((xx.ravel(), pts[:, 0]))
-    cy = np.concatenate((yy.ravel(), pts[:, 1]))
-    ct = np.concatenate((st.ravel(), point_t))
-    hx, hy = float(sx[1] - sx[0]), float(sy[1] - sy[0])
-    hottest = _extreme(model, cx, cy, ct, 1.0, hx, hy)
-    coldest = _extreme(model, cx, cy, ct, -1.0, hx, hy)
+        sets.append(_Samples(sx, sy, model._grid(sx, sy).temp))
+    ext = _find_extremes(model, sets, reported, p.limits.max_surface_temperature is not None)
+    errors.append(ext.error)
+    most = max(most, ext.most)
+    error_estimate = max(errors)
 
     # flows and balance
     flows = model.edge_heat_flows()
@@ -1751,10 +2613,7 @@ def solve_plate(problem: PlateProblem) -> PlateResult:
                             "slowly next to the singular corner to report; given as null")
 
     # safety
-    body = Scope("body", hottest, coldest)
-    surfaces = [_edge_scope(model, n, sx, sy, st) for n in EDGE_NAMES
-                if model.cond[n].kind == "R"]
-    safety = check_limits(p.limits, body, surfaces)
+    safety = check_limits(p.limits, Scope("body", ext.hottest, ext.coldest), ext.surfaces)
 
     # convergence
     values = [point_t] + ([grid_t] if grid_t is not None else [])
@@ -1782,8 +2641,8 @@ def solve_plate(problem: PlateProblem) -> PlateResult:
         edge_heat_flow=EdgeHeatFlow(**flows),
         generation_heat=gen,
         energy_balance=balance,
-        hottest=hottest,
-        coldest=coldest,
+        hottest=ext.hottest,
+        coldest=ext.coldest,
         convergence=conv,
         safety=safety,
         warnings=tuple(warnings),
