@@ -1356,17 +1356,17 @@ def choose_terms(sub: SubProblem, consts: TailConstants, t: _Array, budget: floa
 
 
 def _buckets(terms: _Array) -> list[tuple[int, _Array]]:
-    """Group the indices with terms > 0 by count rounded up to a power of two (one group when
-    the counts are all <= 64 or within a factor 2): (largest count, indices) per group. The
-    sums mask each point's modes beyond its own count, so grouping only saves work."""
+    """Group the indices with terms > 0 by count: up to 64, then up to 256, 1024, ... (one group
+    when the counts are within a factor 4): (largest count, indices) per group. The sums mask
+    each point's modes beyond its own count, so grouping only saves work."""
     pos = np.flatnonzero(terms > 0)
     if pos.size == 0:
         return []
     sel = terms[pos]
     hi, lo = int(sel.max()), int(sel.min())
-    if hi <= 64 or 2 * lo > hi:
+    if hi <= 64 or 4 * lo > hi:
         return [(hi, pos)]
-    key = np.ceil(np.log2(sel))
+    key = np.maximum(np.ceil(np.log2(sel) / 2.0), 3.0)  # 64 = 4^3, then powers of 4
     return [(int(terms[pos[key == kv]].max()), pos[key == kv]) for kv in np.unique(key)]
 
 
@@ -1449,7 +1449,7 @@ def _sine_table(mu: _Array, phase: _Array, sigma: _Array) -> _Array:
     rounding error grows by about one ulp per step.
     """
     m = sigma.size
-    if m < 8:
+    if m < 16 or mu.size < 128:  # the doubling's dozens of calls cost more than the sines
         return np.sin(sigma[:, None] * mu + phase)
     step = (sigma[-1] - sigma[0]) / (m - 1)
     if not step > 0.0 or float(np.abs(np.diff(sigma) - step).max()) > 1e-13:
@@ -1866,6 +1866,8 @@ class PlateSeries:
     def choose(self, t: _Array) -> tuple[_Array, _Array]:
         """Truncation rule for every series at once: t (S, Q) distances from each series' data
         edge, m -> (terms, tail bound K), both (S, Q)."""
+        if t.size * self._ladder.size <= 8192:  # few points: one pass costs less
+            return _pick(_tail_core(self._tail, self._ladder, t), self._ladder, self.budget)
         return _pick_coarse_fine(self._tail, self._ladder, t, self.budget)
 
     def _local(self, x: _Array, y: _Array) -> tuple[_Array, _Array]:
@@ -1893,12 +1895,17 @@ class PlateSeries:
 
     def _weights_for(self, i: int, n: int) -> SeriesWeights:
         """Summation weights of series i holding at least n terms: a row of a stack built
-        already, else the series' own table."""
-        full = tuple(range(len(self.series)))
-        have = [c for c, sub in self._stacks if sub == full and c >= n]
-        if have and min(have) <= _root_count(n, self.problem.max_terms):
-            return _stack_row(self._stack(min(have)), i)
-        return self.series[i].weights(n)
+        already (not more than 4 times longer than needed), else of the all-series stack of
+        `_root_count(n)` terms when that is the shortest (the flows start there), else of a
+        stack of this series alone."""
+        want = _root_count(n, self.problem.max_terms)
+        have = [(c, sub) for c, sub in self._stacks if i in sub and n <= c <= 4 * want]
+        if have:
+            c, sub = min(have)
+            return _stack_row(self._stack(c, sub), sub.index(i))
+        if want == _root_count(1, self.problem.max_terms):
+            return _stack_row(self._stack(want), i)
+        return _stack_row(self._stack(want, (i,)), 0)
 
     # ------------------------------------------------------------------ evaluation
     def _fixed_edges(self, x: _Array, y: _Array) -> tuple[_Array, _Array]:
@@ -2171,8 +2178,8 @@ def settle_flow_series(terms: _Array, tol: _Array,
             p = np.rint(rate[:, -1])
             steady = (np.all(r[:, 1:] > 1.5, axis=1) & (p >= 1.0)
                       & (np.abs(rate[:, -1] - p) < 0.1) & (np.abs(rate[:, -2] - p) < 0.2))
-            upper = _richardson(s[:, 2:], p)
-            lower = _richardson(s[:, 1:5], p)
+            both = _richardson(np.concatenate((s[:, 2:], s[:, 1:5])), np.concatenate((p, p)))
+            upper, lower = both[:p.size], both[p.size:]
             rich = ~ok & steady & (np.abs(upper - lower) <= tol)
             growth = np.where(steady & (np.abs(upper - lower) <= tol * 2.0 ** (p + 2)), 2, 4)
         values = np.where(rich, upper, values)
@@ -2546,6 +2553,10 @@ def solve_plate(problem: PlateProblem) -> PlateResult:
     w, h = p.width, p.height
     warnings: list[str] = []
 
+    # flows first: their mode tables (256 terms of every series, more for slow ones) then
+    # serve the evaluations below
+    flows = model.edge_heat_flows()
+
     pts = np.asarray(p.points, dtype=float).reshape(-1, 2)
     pts = np.array((np.clip(pts[:, 0], 0.0, w), np.clip(pts[:, 1], 0.0, h))).T.reshape(-1, 2)
     npts = pts.shape[0]
@@ -2587,8 +2598,7 @@ def solve_plate(problem: PlateProblem) -> PlateResult:
     most = max(most, ext.most)
     error_estimate = max(errors)
 
-    # flows and balance
-    flows = model.edge_heat_flows()
+    # balance
     gen = p.generation * w * h
     finite = [v for v in flows.values() if v is not None]
     if all(v is not None for v in flows.values()):
