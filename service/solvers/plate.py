@@ -1870,6 +1870,32 @@ class PlateSeries:
             return _pick(_tail_core(self._tail, self._ladder, t), self._ladder, self.budget)
         return _pick_coarse_fine(self._tail, self._ladder, t, self.budget)
 
+    def _choose_rows(self, rows: list[_Array]) -> tuple[_Array, _Array]:
+        """The truncation rule for many rows of one distance each (per series), evaluated at
+        a few distances only: 0 and about 25 % steps from the smallest positive one. Each row
+        takes the count and bound of the largest of those not above its own distance; the
+        bound does not increase with the distance, so they hold for the row (with at most
+        about 25 % more terms than it needs). Returns (terms, bound), (S, max rows)."""
+        size = max(r.size for r in rows)
+        picks, where = [], []
+        for r in rows:
+            pos = r[r > 0.0]
+            lo = float(pos.min()) if pos.size else 1.0
+            steps = int(math.ceil(math.log(max(float(r.max()), lo) / lo) / math.log(1.25)))
+            levels = lo * 1.25 ** np.arange(steps + 1)
+            levels = np.concatenate(([0.0], levels[levels <= r.max()]))
+            picks.append(levels)
+            where.append(np.searchsorted(levels, r, side="right") - 1)
+        width = max(v.size for v in picks)
+        t = np.array([np.concatenate((v, np.full(width - v.size, v[-1]))) for v in picks])
+        terms, bound = self.choose(t)
+        out_terms = np.zeros((len(rows), size), dtype=terms.dtype)
+        out_bound = np.zeros((len(rows), size))
+        for i, idx in enumerate(where):
+            out_terms[i, :idx.size] = terms[i, idx]
+            out_bound[i, :idx.size] = bound[i, idx]
+        return out_terms, out_bound
+
     def _local(self, x: _Array, y: _Array) -> tuple[_Array, _Array]:
         """(sigma, t) of points in each series' frame, (S, P) each, clipped to the plate."""
         st = self._affine @ np.array((x, y, np.ones(x.shape)))
@@ -1987,10 +2013,7 @@ class PlateSeries:
                 f = _FRAMES[ser.sub.edge]
                 a = gy if f.along_x else gx
                 across.append(np.clip(ser.sub.depth - a if f.far else a, 0.0, ser.sub.depth))
-            q = max(a.size for a in across)
-            tq = np.array([np.pad(a, (0, q - a.size), constant_values=a[-1] if a.size else 0.0)
-                           for a in across])
-            terms_all, bound_all = self.choose(tq)
+            terms_all, bound_all = self._choose_rows(across)
             for i, ser in enumerate(self.series):
                 f = _FRAMES[ser.sub.edge]
                 t = across[i]
@@ -2566,9 +2589,11 @@ def solve_plate(problem: PlateProblem) -> PlateResult:
     meshes = [(np.tile(gx_l, gy_l.size).reshape(gy_l.size, gx_l.size),
                np.repeat(gy_l, gx_l.size).reshape(gy_l.size, gx_l.size)) for gx_l, gy_l in lines]
     # one pass for the points and the sample lines, terms chosen per point
-    temp, err, terms = model._evaluate(
-        np.concatenate([pts[:, 0]] + [m[0].ravel() for m in meshes]),
-        np.concatenate([pts[:, 1]] + [m[1].ravel() for m in meshes]), None)
+    temp, err, terms = np.zeros(0), np.zeros(0), np.zeros((0, 0), int)
+    if npts or meshes:
+        temp, err, terms = model._evaluate(
+            np.concatenate([pts[:, 0]] + [m[0].ravel() for m in meshes]),
+            np.concatenate([pts[:, 1]] + [m[1].ravel() for m in meshes]), None)
     point_t, point_err = temp[:npts], err[:npts]
     most = int(terms[:, :npts].max(initial=0))
     errors = [float(point_err.max(initial=0.0))]
