@@ -6,7 +6,7 @@ VENV := .venv
 BIN := $(VENV)/bin
 STAMP := $(VENV)/.installed
 
-.PHONY: serve test venv openapi bench verify lint clean
+.PHONY: serve test venv openapi bench verify fuzz load lint clean
 
 $(BIN)/python:
 	$(PYTHON) -m venv $(VENV)
@@ -27,11 +27,22 @@ test: $(STAMP)
 openapi: $(STAMP)
 	$(BIN)/python -m service.openapi > docs/openapi.json
 
+# every bench/ script; the figures and ratios go to docs/benchmarks.md
 bench: $(STAMP)
-	@for script in bench/*.py; do echo "== $$script"; $(BIN)/python $$script || exit 1; done
+	$(BIN)/python -m pip install --quiet -e '.[test,bench]'
+	@{ echo "# Benchmarks"; echo; echo "Written by \`make bench\` on $$(date -u +%Y-%m-%d) ($$(nproc) cores, load $$(cut -d' ' -f1 /proc/loadavg))."; \
+	  for script in bench/[a-z]*.py; do echo; echo "## $$script"; echo; echo '```'; \
+	  OPENBLAS_NUM_THREADS=1 $(BIN)/python $$script 2>&1 || exit 1; echo '```'; done; } > docs/benchmarks.md
+	@cat docs/benchmarks.md
+
+fuzz: $(STAMP)
+	CONDUCTION_FUZZ_EXAMPLES=300 $(BIN)/python -m pytest tests/fuzz -q
+
+load: $(STAMP)
+	$(BIN)/python bench/load.py
 
 verify: $(STAMP)
-	$(BIN)/python -m service.api.verification
+	$(BIN)/python -m service.api.verification --readme
 
 lint: $(STAMP)
 	$(BIN)/python -m pip install --quiet -e '.[test,dev]'

@@ -25,18 +25,28 @@ from schemas.common import (
 from schemas.fields import Integer, Number, Quantity
 from schemas.polymorphic import Polymorphic
 from service.solvers.errors import TooLargeError
+from service.solvers.methods import PLATE_METHODS, PlateMethodProblem
 from service.solvers.plate import Edge, PlateProblem
 
 EDGE_NAMES = ("bottom", "right", "top", "left")
-METHODS = ("auto", "series", "grid", "both")
-UNAVAILABLE_METHODS = ("grid", "both")
+METHODS = PLATE_METHODS
+# Ranges (default units) that bound every input to engineering scale, so that no combination of
+# in-range values can overflow the series or the grid (method grid and both).
+SIZE = {"minimum": 1e-6, "maximum": 1e4}                 # m
+POSITION = {"minimum": -1e4, "maximum": 1e4}             # m (inside the rectangle: checked)
+CONDUCTIVITY = {"minimum": 0.0, "exclusive_minimum": True, "maximum": 1e5}  # W/(m K)
+TEMPERATURE = {"maximum": 1e4}                           # degC (absolute zero always refused)
+FILM_COEFFICIENT = {"minimum": 0.0, "exclusive_minimum": True, "maximum": 1e7}  # W/(m^2 K)
+HEAT_FLUX = {"minimum": -1e9, "maximum": 1e9}            # W/m^2
+GENERATION = {"minimum": -1e13, "maximum": 1e13}         # W/m^3
 
 
 class TemperatureEdgeSchema(BaseSchema):
     type = fields.String(required=True, validate=validate.Equal("temperature"))
-    value = Quantity("temperature", metadata={"description": "Uniform edge temperature."})
+    value = Quantity("temperature", **TEMPERATURE, metadata={
+        "description": "Uniform edge temperature."})
     profile = fields.List(
-        fields.Tuple((Quantity("length"), Quantity("temperature"))),
+        fields.Tuple((Quantity("length", **POSITION), Quantity("temperature", **TEMPERATURE))),
         validate=validate.Length(min=2),
         metadata={"description": "Piecewise-linear temperature [[s, T], ...] with s measured "
                                  "along the edge (x for bottom/top, y for left/right), strictly "
@@ -55,15 +65,14 @@ class TemperatureEdgeSchema(BaseSchema):
 
 class FluxEdgeSchema(BaseSchema):
     type = fields.String(required=True, validate=validate.Equal("flux"))
-    value = Quantity("heat_flux", required=True, metadata={
+    value = Quantity("heat_flux", required=True, **HEAT_FLUX, metadata={
         "description": "Heat flux, positive into the body."})
 
 
 class ConvectionEdgeSchema(BaseSchema):
     type = fields.String(required=True, validate=validate.Equal("convection"))
-    film_coefficient = Quantity("film_coefficient", required=True, minimum=0.0,
-                                exclusive_minimum=True)
-    ambient = Quantity("temperature", required=True)
+    film_coefficient = Quantity("film_coefficient", required=True, **FILM_COEFFICIENT)
+    ambient = Quantity("temperature", required=True, **TEMPERATURE)
 
 
 class InsulatedEdgeSchema(BaseSchema):
@@ -94,16 +103,16 @@ class OutputGridSchema(BaseSchema):
     ny = Integer(required=True, minimum=2, metadata={"description": "Rows, including edges."})
 
 
-Point = fields.Tuple((Quantity("length"), Quantity("length")))
+Point = fields.Tuple((Quantity("length", **POSITION), Quantity("length", **POSITION)))
 
 
 class PlateRequestSchema(SolveRequestSchema):
     """A rectangle, origin at the bottom-left corner, x along width and y along height."""
 
-    width = Quantity("length", required=True, minimum=0.0, exclusive_minimum=True)
-    height = Quantity("length", required=True, minimum=0.0, exclusive_minimum=True)
-    conductivity = Quantity("conductivity", required=True, minimum=0.0, exclusive_minimum=True)
-    generation = Quantity("generation", load_default=0.0, metadata={
+    width = Quantity("length", required=True, **SIZE)
+    height = Quantity("length", required=True, **SIZE)
+    conductivity = Quantity("conductivity", required=True, **CONDUCTIVITY)
+    generation = Quantity("generation", load_default=0.0, **GENERATION, metadata={
         "description": "Uniform volumetric heat generation."})
     edges = fields.Nested(EdgesSchema, required=True)
     points = fields.List(Point, load_default=list, metadata={
@@ -111,12 +120,17 @@ class PlateRequestSchema(SolveRequestSchema):
     grid = fields.Nested(OutputGridSchema, load_default=None, metadata={
         "description": "Report the field on nx by ny evenly spaced points, edges included."})
     method = fields.String(load_default="auto", validate=validate.OneOf(METHODS), metadata={
-        "description": "auto: series where it applies; series; grid; both (cross-check)."})
+        "description": "auto: series where it applies (every plate this request describes); "
+                       "series; grid: the finite-volume solver (about 40,000 cells, with a "
+                       "mesh error estimate); both: the series answer with the grid's beside it "
+                       "and the largest difference (results.cross_check)."})
     tolerance = Quantity("temperature_difference", load_default=None, minimum=0.0,
-                         exclusive_minimum=True, metadata={
+                         exclusive_minimum=True, maximum=1e3, metadata={
                              "description": "Absolute temperature accuracy asked of the series; "
                                             "default 1e-6 of the largest temperature difference "
-                                            "in the problem."})
+                                            "in the problem. Method grid: when given, the grid "
+                                            "is refined (within the cell budget) until its "
+                                            "mesh error estimate meets it, else a warning."})
 
     @pre_load
     def _refuse_oversized(self, data: Any, **kwargs: Any) -> Any:
@@ -156,23 +170,23 @@ class PlateRequestSchema(SolveRequestSchema):
                             or profile[-1][0] > length * (1 + 1e-12)):
                 errors.setdefault("edges", {}).setdefault(name, {})["profile"] = [
                     f"Positions must lie within the edge, 0 to {length:g} m."]
-        if data.get("method") in UNAVAILABLE_METHODS:
-            errors["method"] = [f"Method {data['method']!r} needs the grid solver, which this "
-                                "version does not have yet; use 'auto' or 'series'."]
         if errors:
             raise ValidationError(errors)
 
-    def make_problem(self, data: dict[str, Any]) -> PlateProblem:
+    def make_problem(self, data: dict[str, Any]) -> PlateMethodProblem:
         edges = {name: _edge(edge) for name, edge in data["edges"].items()}
         grid = data.get("grid")
-        return PlateProblem(
+        budgets = CURRENT_BUDGETS.get()
+        plate = PlateProblem(
             width=data["width"], height=data["height"], conductivity=data["conductivity"],
             generation=data["generation"], **edges,
             points=tuple((float(x), float(y)) for x, y in data["points"]),
             grid=(grid["nx"], grid["ny"]) if grid else None,
-            atol=data["tolerance"], max_terms=CURRENT_BUDGETS.get().max_series_terms,
+            atol=data["tolerance"], max_terms=budgets.max_series_terms,
             limits=data["limits"],
         )
+        return PlateMethodProblem(plate=plate, method=data["method"],
+                                  max_cells=budgets.max_cells)
 
 
 def _edge(data: dict[str, Any]) -> Edge:
@@ -220,6 +234,45 @@ class ExtremesSchema(Schema):
     coldest = fields.Nested(LocationSchema)
 
 
+class CrossCheckSchema(Schema):
+    """Method both: the grid's answer beside the series answer."""
+
+    method = fields.String(metadata={"enum": ["grid"], "description": "The method checked "
+                                                                      "against the series."})
+    max_difference = Quantity("temperature_difference", allow_none=True, metadata={
+        "description": "Largest |series - grid| over the requested points, the output grid and "
+                       "a 10 x 10 interior sample (corners where two different fixed "
+                       "temperatures meet are left out)."})
+    at = Quantity("length", allow_none=True, metadata={
+        "type": "array", "items": {"type": "number"}, "nullable": True,
+        "description": "[x, y] where it occurs."})
+    grid_cells = Integer()
+    grid_error_estimate = Quantity("temperature_difference", allow_none=True, metadata={
+        "description": "The grid's largest mesh error estimate (Richardson, two grids) over "
+                       "the compared points."})
+    series_error_estimate = Quantity("temperature_difference", allow_none=True, metadata={
+        "description": "The series' tail bound."})
+    agrees = fields.Boolean(metadata={
+        "description": "max_difference is within the series estimate plus 3 times the grid "
+                       "estimate (the safety factor of a two-grid convergence index)."})
+    points = fields.List(fields.Nested(PointTemperatureSchema), metadata={
+        "description": "The grid's temperatures at the requested points."})
+    edge_heat_flow = fields.Nested(EdgeHeatFlowSchema, metadata={
+        "description": "The grid's heat flow into the body through each edge, per metre of "
+                       "depth."})
+
+
+def _finite_or_none(value: Any) -> Any:
+    return None if value is None or not np.isfinite(value) else float(value)
+
+
+def _points(coords: Any, temperatures: Any) -> list[dict[str, Any]]:
+    coords = np.asarray(coords, dtype=float).reshape(-1, 2)
+    temps = np.asarray(temperatures, dtype=float)
+    return [{"x": x, "y": y, "temperature": t}
+            for (x, y), t in zip(coords.tolist(), temps.tolist(), strict=True)]
+
+
 class PlateResultsSchema(Schema):
     points = fields.List(fields.Nested(PointTemperatureSchema))
     grid = fields.Nested(FieldGridSchema, allow_none=True)
@@ -229,23 +282,37 @@ class PlateResultsSchema(Schema):
                        "unbounded."})
     energy_balance = fields.Nested(EnergyBalanceSchema)
     extremes = fields.Nested(ExtremesSchema)
+    cross_check = fields.Nested(CrossCheckSchema, allow_none=True, metadata={
+        "description": "Method both: the grid's answer and the largest difference from the "
+                       "series; null for the other methods."})
 
     @pre_dump
-    def _arrange(self, result: Any, **kwargs: Any) -> dict[str, Any]:
-        coords = np.asarray(result.point_coordinates, dtype=float).reshape(-1, 2)
-        temps = np.asarray(result.point_temperatures, dtype=float)
+    def _arrange(self, answer: Any, **kwargs: Any) -> dict[str, Any]:
+        result = answer.plate
         grid = None
         if result.grid_temperature is not None:
             grid = {"x": result.grid_x, "y": result.grid_y, "temperature": result.grid_temperature}
+        check = answer.cross_check
+        cross = None
+        if check is not None:
+            at = [_finite_or_none(v) for v in check.at]
+            cross = {"method": check.method,
+                     "max_difference": _finite_or_none(check.max_difference),
+                     "at": None if None in at else at, "grid_cells": check.grid_cells,
+                     "grid_error_estimate": check.grid_error_estimate,
+                     "series_error_estimate": check.series_error_estimate,
+                     "agrees": check.agrees,
+                     "points": _points(result.point_coordinates, check.point_temperatures),
+                     "edge_heat_flow": check.edge_heat_flow}
         return {
-            "points": [{"x": x, "y": y, "temperature": t}
-                       for (x, y), t in zip(coords.tolist(), temps.tolist(), strict=True)],
+            "points": _points(result.point_coordinates, result.point_temperatures),
             "grid": grid,
             "edge_heat_flow": result.edge_heat_flow,
             "energy_balance": {"generation": result.generation_heat,
                                "net": result.energy_balance.net,
                                "relative_error": result.energy_balance.relative_error},
             "extremes": {"hottest": result.hottest, "coldest": result.coldest},
+            "cross_check": cross,
         }
 
 

@@ -4,8 +4,15 @@ from __future__ import annotations
 
 from typing import Any
 
-from marshmallow import Schema, ValidationError, fields, pre_dump, pre_load, validate, \
-    validates_schema
+from marshmallow import (
+    Schema,
+    ValidationError,
+    fields,
+    pre_dump,
+    pre_load,
+    validate,
+    validates_schema,
+)
 
 from schemas.budgets import CURRENT_BUDGETS
 from schemas.common import BaseSchema, SolveRequestSchema, SolveResponseSchema
@@ -41,8 +48,13 @@ class Position(fields.Field):
         if isinstance(value, list):
             if not 2 <= len(value) <= 3:
                 raise ValidationError("A point of a product shape has 2 or 3 coordinates.")
-            return tuple(self._scalar.deserialize(v) for v in value)
-        return self._scalar.deserialize(value)
+            return tuple(self._distance(v) for v in value)
+        return self._distance(value)
+
+    def _distance(self, value: Any) -> float:
+        distance = self._scalar.deserialize(value)
+        assert distance is not None  # Quantity fields reject null
+        return float(distance)
 
 
 class ConvectionSurfaceSchema(BaseSchema):

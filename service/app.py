@@ -4,19 +4,17 @@ from __future__ import annotations
 
 import functools
 import logging
-import time
-import uuid
 from collections.abc import Mapping
 from typing import Any
 
-from flask import Flask, Response, g, request
+from flask import Flask
 
 from service.config import budgets_from, load_config
 from service.cors import install_cors
 from service.jsonio import OrjsonProvider
+from service.ops import install_ops
+from service.ops.logs import REQUEST_ID_HEADER  # noqa: F401 - re-exported
 from service.problems import register_error_handlers
-
-REQUEST_ID_HEADER = "X-Request-ID"
 
 
 def create_app(config: Mapping[str, Any] | None = None) -> Flask:
@@ -44,16 +42,6 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
     }
     register_error_handlers(app)
     install_cors(app, settings["CORS_ORIGINS"])
-
-    @app.before_request
-    def _start() -> None:
-        g.started = time.perf_counter()
-        incoming = request.headers.get(REQUEST_ID_HEADER, "")
-        g.request_id = incoming[:128] if incoming.isprintable() and incoming else uuid.uuid4().hex
-
-    @app.after_request
-    def _finish(response: Response) -> Response:
-        response.headers[REQUEST_ID_HEADER] = getattr(g, "request_id", "")
-        return response
-
+    # request IDs and JSON logs, API keys, readiness, time budget, metrics (service/ops/)
+    install_ops(app)
     return app

@@ -18,6 +18,15 @@ ENV_PREFIX = "CONDUCTION_"
 DEFAULTS: dict[str, Any] = {
     "MAX_BODY_BYTES": 2_000_000,   # request body limit (413 beyond it)
     "LOG_LEVEL": "INFO",
+    # operations (service/ops/): logs, keys, readiness, the time budget
+    "LOG_FORMAT": "json",          # json (one object per line) or text
+    "REQUEST_LOG": True,           # one log line per request (probes and scrapes at DEBUG)
+    "API_KEY_HASHES": "",          # SHA-256 digests of accepted keys, comma-separated
+    "API_KEY_FILE": "",            # file of digests, one per line (re-read when it changes)
+    "API_KEY_QUERY": False,        # also accept ?api_key= on GET requests (spreadsheets)
+    "METRICS_REQUIRE_KEY": False,  # /metrics needs a key too (when keys are on)
+    "TIME_BUDGET_SECONDS": 25.0,   # per-request time budget, 0 = off (413 beyond it)
+    "DRAIN_FILE": "",              # set by deploy/gunicorn.conf.py: exists while draining
     "CORS_ORIGINS": "",            # comma-separated allowed origins for browsers; "*" for any
     **{f.name.upper(): f.default for f in fields(Budgets)},
 }

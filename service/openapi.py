@@ -120,6 +120,14 @@ def build_spec() -> dict[str, Any]:
     plugin.map_to_openapi_type(Quantity, None, None)  # number or "value unit" string
     plugin.map_to_openapi_type(Polymorphic, "object", None)
     spec.components.schema("Problem", _problem_schema())
+    # API keys are optional (off unless configured): no scheme, or any one of these
+    spec.components.security_scheme("bearer", {"type": "http", "scheme": "bearer"})
+    spec.components.security_scheme("apiKeyHeader", {"type": "apiKey", "in": "header",
+                                                     "name": "X-API-Key"})
+    spec.components.security_scheme("apiKeyQuery", {
+        "type": "apiKey", "in": "query", "name": "api_key",
+        "description": "Spreadsheet GET requests only, when the operator enables it."})
+    spec.options["security"] = [{}, {"bearer": []}, {"apiKeyHeader": []}, {"apiKeyQuery": []}]
 
     for kind in sorted(FAMILIES):
         family = FAMILIES[kind]
@@ -131,7 +139,7 @@ def build_spec() -> dict[str, Any]:
             "responses": {
                 "200": {"description": "Solved", "content": {
                     "application/json": {"schema": type(family.response_schema)}}},
-                **_problem_responses(400, 413, 415, 422),
+                **_problem_responses(400, 401, 403, 406, 413, 415, 422, 429),
             },
         }})
     from schemas.batch import (
@@ -148,7 +156,7 @@ def build_spec() -> dict[str, Any]:
             "application/json": {"schema": BatchRequestSchema}}},
         "responses": {"200": {"description": "One entry per item, in order", "content": {
             "application/json": {"schema": BatchResponseSchema}}},
-            **_problem_responses(400, 413, 415, 422)},
+            **_problem_responses(400, 401, 403, 413, 415, 422, 429)},
     }})
     spec.path(path="/v1/sweep", operations={"post": {
         "summary": "One base problem with parameters varied; selected outputs as a table",
@@ -158,7 +166,7 @@ def build_spec() -> dict[str, Any]:
         "responses": {"200": {"description": "A table (JSON, or CSV with Accept: text/csv)",
                               "content": {"application/json": {"schema": SweepResponseSchema},
                                           "text/csv": {"schema": {"type": "string"}}}},
-                      **_problem_responses(400, 406, 413, 415, 422)},
+                      **_problem_responses(400, 401, 403, 406, 413, 415, 422, 429)},
     }})
     spec.path(path="/v1/eigenvalues", operations={"get": {
         "summary": "Cached eigenvalue tables used by the series solvers",
@@ -166,8 +174,12 @@ def build_spec() -> dict[str, Any]:
         "parameters": [{"in": "query", "schema": EigenvaluesQuerySchema}],
         "responses": {"200": {"description": "Roots and coefficients", "content": {
             "application/json": {"schema": EigenvaluesResponseSchema}}},
-            **_problem_responses(422)},
+            **_problem_responses(401, 403, 422)},
     }})
+    spec.path(path="/metrics", operations={"get": {
+        "summary": "Prometheus metrics (text exposition format)", "operationId": "metrics",
+        "responses": {"200": {"description": "Metrics", "content": {
+            "text/plain": {"schema": {"type": "string"}}}}, **_problem_responses(401, 403)}}})
     for path, summary in (("/healthz", "Liveness"), ("/readyz", "Readiness")):
         spec.path(path=path, operations={"get": {
             "summary": summary, "operationId": path.strip("/"),

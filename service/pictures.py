@@ -69,6 +69,33 @@ def plate_picture(body: dict[str, Any]) -> bytes:
                          "Steady temperature field")
 
 
+def profile_picture(body: dict[str, Any]) -> bytes:
+    """Temperature through a layered wall: layers shaded and named, limits as lines."""
+    results = body["results"]
+    units = body["units"]
+    fig = _figure(7.0, 4.5)
+    ax = fig.add_subplot()
+    for i, layer in enumerate(results["layers"]):
+        ax.axvspan(layer["inner_position"], layer["outer_position"],
+                   color="0.93" if i % 2 else "0.85", zorder=0)
+        ax.text(0.5 * (layer["inner_position"] + layer["outer_position"]), 1.0,
+                layer["name"] or f"layer {i}", transform=ax.get_xaxis_transform(),
+                ha="center", va="bottom", fontsize=8)
+    profile = results["profile"]
+    ax.plot(profile["positions"], profile["temperatures"], color="black", linewidth=1.5)
+    for name, value in _limit_levels(body):
+        ax.axhline(value, color="crimson", linestyle="--", linewidth=1.2, label=name)
+    frame = "radius" if results["geometry"] in ("cylinder", "sphere") else "depth"
+    ax.set_xlabel(f"{frame} [{units['length']}]")
+    ax.set_ylabel(f"temperature [{units['temperature']}]")
+    ax.set_title(f"Temperature through the {results['geometry']} wall "
+                 f"(safety: {body['safety']['status']})", pad=18)
+    ax.grid(True, alpha=0.3)
+    if _limit_levels(body):
+        ax.legend(fontsize=8)
+    return _png(fig)
+
+
 def curves_picture(body: dict[str, Any], times: list[float], series: dict[str, list[float]],
                    title: str) -> bytes:
     """Temperature-time curves with axes, units and limits drawn as horizontal lines."""

@@ -80,3 +80,25 @@ FIN_PAYLOAD: dict[str, Any] = {
 @pytest.fixture
 def fin_payload() -> dict[str, Any]:
     return copy.deepcopy(FIN_PAYLOAD)
+
+
+GRID_PAYLOAD: dict[str, Any] = {
+    # a cold-store wall panel: polyurethane foam between steel skins, bridged by a steel stud;
+    # the warm side is split where a door frame heater runs (demo scenario, invented)
+    "width": 0.3, "height": 0.1, "geometry": "planar", "cells": {"nx": 30, "ny": 10},
+    "conductivity": 0.025,
+    "zones": [{"name": "steel stud", "region": [0.14, 0.0, 0.16, 0.1], "conductivity": 50,
+               "max_temperature": 80}],
+    "edges": {"bottom": [{"from": 0, "to": 0.2, "type": "convection", "film_coefficient": 8,
+                          "ambient": 20},
+                         {"from": 0.2, "to": 0.3, "type": "flux", "value": 40}],
+              "top": {"type": "convection", "film_coefficient": 25, "ambient": -25},
+              "left": {"type": "insulated"}, "right": {"type": "insulated"}},
+    "points": [[0.0, 0.0], [0.15, 0.05]],
+    "limits": {"min_temperature": -40},
+}
+
+
+@pytest.fixture
+def grid_payload() -> dict[str, Any]:
+    return copy.deepcopy(GRID_PAYLOAD)

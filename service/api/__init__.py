@@ -7,6 +7,7 @@ from flask import Blueprint
 
 def blueprints() -> list[Blueprint]:
     """Every blueprint of the service; importing them registers the solve families."""
-    from service.api import batch, fin, layers, meta, plate, transient, verification
+    from service.api import batch, fin, grid, layers, meta, plate, transient, verification
 
-    return [meta.bp, plate.bp, transient.bp, layers.bp, fin.bp, batch.bp, verification.bp]
+    return [meta.bp, plate.bp, transient.bp, layers.bp, fin.bp, grid.bp, batch.bp,
+            verification.bp]

@@ -21,6 +21,7 @@ from schemas.common import ConvergenceSchema, SolveRequest, quantity_kinds
 from schemas.units import CURRENT_OUTPUT_UNITS, DEFAULT_OUTPUT_UNITS, OutputUnits
 from service import __version__
 from service.jsonio import loads
+from service.ops.metrics import observe_solve
 from service.problems import ProblemError
 from service.tables import SEPARATORS, SelectError, flatten, select, text_value, write_csv
 
@@ -151,13 +152,17 @@ def run_solve(family: Family, payload: Any) -> dict[str, Any]:
     CURRENT_BUDGETS.set(current_app.extensions["conduction"]["budgets"])
     started = time.perf_counter()
     solve_request: SolveRequest = family.request_schema.load(payload)
+    solve_started = time.perf_counter()
     result = family.solve(solve_request.problem)
+    observe_solve(family.kind, result.method, result.convergence,
+                  time.perf_counter() - solve_started)
     units = solve_request.output_units
     warnings = list(result.warnings)
     convergence = result.convergence
     if not convergence.converged:
         diagnostics = dump_with_units(CONVERGENCE_SCHEMA, convergence, units)
-        if not solve_request.accept_unconverged:
+        # a non-finite result has nothing trustworthy to return, whatever the caller accepts
+        if not solve_request.accept_unconverged or convergence.status == "non_finite":
             raise ProblemError("/problems/not-converged",
                                f"{convergence.message} Set accept_unconverged to true to receive "
                                "the result anyway.", diagnostics=diagnostics)

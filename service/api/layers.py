@@ -6,6 +6,7 @@ from flask import Blueprint
 
 from schemas.layers import LayersRequestSchema, LayersResponseSchema
 from service.api.common import solve_endpoint
+from service.pictures import profile_picture
 from service.solvers.layers import LayersProblem, LayersResult, solve_layers
 
 bp = Blueprint("layers", __name__)
@@ -29,6 +30,6 @@ LAYERS_CAUTIONS = (
 @solve_endpoint("layers", "/v1/layers", LayersRequestSchema, LayersResponseSchema,
                 summary="Steady 1D conduction through plane, cylindrical or spherical layers "
                         "(walls, insulated pipes and vessels); thickness for a target",
-                cautions=LAYERS_CAUTIONS)
+                cautions=LAYERS_CAUTIONS, picture=profile_picture)
 def layers(problem: LayersProblem) -> LayersResult:
     return solve_layers(problem)

@@ -98,7 +98,7 @@ def eigen_table(geometry: str, biot: float, start_biot: float, count: int) -> di
     roots = eigen.pair_roots(start, end, start_biot, biot, count)
     return {"geometry": geometry, "biot": biot, "count": count, "roots": roots,
             "coefficients": None, "energy_coefficients": None,
-            "norms": eigen.pair_norm(start, start_biot, roots)}
+            "norms": eigen.pair_norm(start, start_biot, roots, end, biot)}
 
 
 @bp.get("/v1/openapi.json")

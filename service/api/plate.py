@@ -9,7 +9,7 @@ from flask import Blueprint
 from schemas.plate import PlateRequestSchema, PlateResponseSchema
 from service.api.common import solve_endpoint
 from service.pictures import plate_picture
-from service.solvers.plate import PlateProblem, PlateResult, solve_plate
+from service.solvers.methods import PlateMethodProblem, PlateMethodResult, solve_plate_by_method
 
 bp = Blueprint("plate", __name__)
 
@@ -25,8 +25,9 @@ def with_picture_grid(payload: dict[str, Any]) -> dict[str, Any]:
 
 @bp.route("/v1/plate", methods=["GET", "POST"])
 @solve_endpoint("plate", "/v1/plate", PlateRequestSchema, PlateResponseSchema,
-                summary="Steady 2D conduction in a rectangle (series solution)",
+                summary="Steady 2D conduction in a rectangle (series solution, or the "
+                        "finite-volume grid, or both as a cross-check)",
                 cautions=PLATE_CAUTIONS, picture=plate_picture,
                 picture_payload=with_picture_grid)
-def plate(problem: PlateProblem) -> PlateResult:
-    return solve_plate(problem)
+def plate(problem: PlateMethodProblem) -> PlateMethodResult:
+    return solve_plate_by_method(problem)

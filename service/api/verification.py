@@ -80,16 +80,31 @@ def verification() -> Response:
         VerificationResponseSchema().dump(body))
 
 
+README_START = "<!-- verification table: written by make verify -->"
+README_END = "<!-- end of verification table -->"
+
+
 def main() -> int:
-    """`make verify`: print the table (markdown) and fail when any case fails."""
+    """`make verify`: print the table (markdown), rewrite the README's copy when asked with
+    --readme, and fail when any case fails."""
+    import pathlib
+
     from service.app import create_app
 
-    app = create_app({"TESTING": True})
+    app = create_app({"TESTING": True, "LOG_LEVEL": "WARNING"})
     with app.test_request_context():
         outcomes = report()
-    print(markdown_table(outcomes))
+    table = markdown_table(outcomes)
     failed = [o for o in outcomes if not o.passed]
-    print(f"\n{len(outcomes) - len(failed)} passed, {len(failed)} failed")
+    summary = f"{len(outcomes) - len(failed)} passed, {len(failed)} failed"
+    print(table + "\n\n" + summary)
+    if "--readme" in sys.argv:
+        readme = pathlib.Path(__file__).resolve().parents[2] / "README.md"
+        text = readme.read_text()
+        head, rest = text.split(README_START, 1)
+        _, tail = rest.split(README_END, 1)
+        readme.write_text(f"{head}{README_START}\n{table}\n\n{summary} (service "
+                          f"{__version__}).\n{README_END}{tail}")
     return 1 if failed else 0
 
 

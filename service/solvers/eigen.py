@@ -185,15 +185,24 @@ def _pair_roots_cached(left: str, right: str, left_biot: float, right_biot: floa
     return roots
 
 
-def pair_norm(left: str, left_biot: float, mu: _Array) -> _Array:
+def pair_norm(left: str, left_biot: float, mu: _Array, right: str | None = None,
+              right_biot: float = 0.0) -> _Array:
     """Integral over [0, 1] of X_n(s)^2 for X_n = sin(mu s + phase_left).
 
-    Equals 1/2 + (sin(2 phi) - sin(2 mu + 2 phi)) / (4 mu); 1 for the zero root.
+    Equals 1/2 + (sin(2 phi_l) - sin(2 mu + 2 phi_l)) / (4 mu); 1 for the zero root. When the
+    right end is given, the equivalent sum of non-negative terms
+    1/2 + (sin(2 phi_l) + sin(2 phi_r)) / (4 mu) is used (mu + phi_l + phi_r = n pi), which
+    keeps its digits for small roots of convective ends with small Biot numbers.
     """
     mu = np.asarray(mu, dtype=float)
     phi = pair_phase(left, left_biot, mu)
     with np.errstate(divide="ignore", invalid="ignore"):
-        norm = 0.5 + (np.sin(2.0 * phi) - np.sin(2.0 * mu + 2.0 * phi)) / (4.0 * mu)
+        if right is None:
+            norm = 0.5 + (np.sin(2.0 * phi) - np.sin(2.0 * mu + 2.0 * phi)) / (4.0 * mu)
+        else:
+            right_kind, right_biot = _normalise_pair(right, right_biot)
+            phi_r = pair_phase(right_kind, right_biot, mu)
+            norm = 0.5 + (np.sin(2.0 * phi) + np.sin(2.0 * phi_r)) / (4.0 * mu)
     return np.where(mu == 0.0, np.sin(phi) ** 2, norm)
 
 

@@ -292,3 +292,8 @@ def test_sweep_over_insulation_thickness(client, layers_payload):
     assert body["failed"] == 0 and body["columns"][1]["unit"] == "W/m"
     losses = [row[1] for row in body["rows"]]
     assert losses[0] > losses[1] > losses[2]  # beyond the critical radius, more is less
+
+
+def test_layers_png_profile(client, layers_payload):
+    response = client.post("/v1/layers?format=png", json=layers_payload)
+    assert response.status_code == 200 and response.data[:4] == b"\x89PNG"

@@ -6,6 +6,8 @@ Bounded: a fixed number of examples per operation, loopback only. Checks: no ser
 
 from __future__ import annotations
 
+import os
+
 import pytest
 import schemathesis
 from hypothesis import HealthCheck, given, settings
@@ -15,7 +17,8 @@ from schemathesis.specs.openapi.checks import (
     status_code_conformance,
 )
 
-EXAMPLES = 25
+#: examples per operation: 25 in the suite, more with `make fuzz`
+EXAMPLES = int(os.environ.get("CONDUCTION_FUZZ_EXAMPLES", "25"))
 CHECKS = (not_a_server_error, response_schema_conformance, status_code_conformance)
 
 
@@ -26,19 +29,23 @@ def operations(server):
     return [result.ok() for result in schema.get_all_operations()]
 
 
+def _fuzz(operation, statuses: dict[str, set[int]]) -> None:
+    @given(case=operation.as_strategy())
+    @settings(max_examples=EXAMPLES, deadline=None, derandomize=True, database=None,
+              suppress_health_check=list(HealthCheck))
+    def run(case):
+        response = case.call(timeout=30)
+        statuses.setdefault(operation.label, set()).add(response.status_code)
+        case.validate_response(response, checks=CHECKS)
+
+    run()
+
+
 def test_every_operation(operations):
     assert len(operations) >= 5
     statuses: dict[str, set[int]] = {}
     for operation in operations:
-        @given(case=operation.as_strategy())
-        @settings(max_examples=EXAMPLES, deadline=None, derandomize=True, database=None,
-                  suppress_health_check=list(HealthCheck))
-        def run(case):
-            response = case.call(timeout=30)
-            statuses.setdefault(operation.label, set()).add(response.status_code)
-            case.validate_response(response, checks=CHECKS)
-
-        run()
+        _fuzz(operation, statuses)
     # the fuzzer reached every operation and got both answers and rejections
     assert set(statuses) == {op.label for op in operations}
     assert any(200 in codes for codes in statuses.values())

@@ -64,6 +64,23 @@ def test_fin_over_http(server):
     assert response.status_code == 422 and "tip" in response.json()["errors"]
 
 
+def test_grid_over_http(server):
+    from tests.conftest import GRID_PAYLOAD
+
+    payload = {**GRID_PAYLOAD, "verify_mesh": True, "output_units": {"length": "mm"}}
+    response = requests.post(server + "/v1/grid", json=payload, timeout=30)
+    assert response.status_code == 200, response.text
+    body = response.json()
+    assert body["kind"] == "grid" and body["method"] == "grid"
+    assert body["units"]["length"] == "mm" and body["units"]["heat_flow_per_length"] == "W/m"
+    assert len(body["results"]["edges"]["bottom"]["segments"]) == 2
+    assert all(p["error_estimate"] is not None for p in body["results"]["points"])
+    response = requests.post(server + "/v1/grid", timeout=10,
+                             json={**GRID_PAYLOAD, "cells": {"nx": 100_000, "ny": 100_000}})
+    assert response.status_code == 413
+    assert response.json()["type"] == "/problems/too-large"
+
+
 def test_problem_details_over_http(server):
     response = requests.post(server + "/v1/plate", data="{", timeout=5,
                              headers={"Content-Type": "application/json"})

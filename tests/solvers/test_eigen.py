@@ -139,6 +139,18 @@ def test_pair_norm_matches_quadrature():
         np.testing.assert_allclose(nrm, ref, rtol=1e-12, atol=0)
 
 
+@pytest.mark.parametrize("biot", [1e-6, 1e-3, 0.7])
+def test_pair_norm_two_end_form_matches_quadrature(biot):
+    mu = eigen.pair_roots("convective", "convective", biot, biot, 3)
+    norm = eigen.pair_norm("convective", biot, mu, "convective", biot)
+    for m, nrm in zip(mu, norm, strict=True):
+        phi = float(eigen.pair_phase("convective", biot, np.array([m]))[0])
+        # independent implementation: mpmath quadrature of sin^2(mu s + phi)
+        mpmath.mp.dps = 40
+        ref = float(mpmath.quad(lambda s, m=m, phi=phi: mpmath.sin(m * s + phi) ** 2, [0, 1]))
+        np.testing.assert_allclose(nrm, ref, rtol=1e-10, atol=0)
+
+
 def test_returned_tables_are_read_only_and_cached():
     a = eigen.body_roots("slab", 0.25, 10)
     b = eigen.body_roots("slab", 0.25, 10)

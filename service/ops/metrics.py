@@ -1,0 +1,168 @@
+"""Prometheus metrics, multi-process aware, served at GET /metrics.
+
+Under gunicorn every worker is its own process: deploy/gunicorn.conf.py points
+PROMETHEUS_MULTIPROC_DIR at a fresh directory before any worker starts, each worker writes its
+samples to memory-mapped files there, and a scrape of any worker merges them all
+(`MultiProcessCollector`). Without that variable (the Flask test client, `flask run`) the
+metrics live in this process's default registry.
+
+Metrics (all prefixed `conduction_`):
+
+- `http_requests_total{family, route, method, status}`: requests answered. `route` is the URL
+  rule (`/v1/plate`) or `unmatched`; `family` the solve family behind the route (`plate`), empty
+  for other routes.
+- `http_request_duration_seconds{family, route, status}`: latency histogram, from the first
+  `before_request` to the response object (body transfer excluded).
+- `http_requests_in_flight`: requests being served, summed over live workers.
+- `solve_duration_seconds{family, method, outcome}`: time in the solver proper (schema
+  validation and dumping excluded), per solve (a batch item counts as one); `outcome` is the
+  Convergence status.
+- `series_terms{family}`, `grid_cells{family}`, `solver_iterations{family}`: histograms of the
+  Convergence record's `terms`, `cells` and `iterations` where the solver reports them.
+- `time_budget_exceeded_total{route}`, `auth_failures_total{reason}`.
+- `build_info{version}`: always 1.
+
+The metric objects are module-level because a Prometheus registry is process-wide by design:
+creating them per app would register duplicate series.
+"""
+
+from __future__ import annotations
+
+import os
+import time
+from typing import TYPE_CHECKING, Any
+
+from prometheus_client import (
+    CONTENT_TYPE_LATEST,
+    REGISTRY,
+    CollectorRegistry,
+    Counter,
+    Gauge,
+    Histogram,
+    generate_latest,
+)
+from prometheus_client import multiprocess as _multiprocess
+
+from service import __version__
+
+if TYPE_CHECKING:
+    from flask import Flask, Response
+
+    from service.solvers.convergence import Convergence
+
+MULTIPROCESS_ENV = "PROMETHEUS_MULTIPROC_DIR"
+
+#: Latency buckets, s: from a cached series at a few points (about 1 ms) to the time budget.
+LATENCY_BUCKETS = (0.001, 0.0025, 0.005, 0.01, 0.025, 0.05, 0.1, 0.25, 0.5, 1.0, 2.5, 5.0, 10.0,
+                   30.0, 60.0)
+TERM_BUCKETS = (1, 3, 10, 30, 100, 300, 1_000, 3_000, 10_000, 30_000)
+CELL_BUCKETS = (100, 1_000, 10_000, 30_000, 100_000, 300_000, 1_000_000, 3_000_000, 10_000_000)
+ITERATION_BUCKETS = (1, 3, 10, 30, 100, 300, 1_000, 10_000, 100_000)
+
+STANDARD_METHODS = frozenset({"GET", "HEAD", "POST", "PUT", "PATCH", "DELETE", "OPTIONS"})
+
+HTTP_REQUESTS = Counter(
+    "conduction_http_requests_total", "HTTP requests answered.",
+    ("family", "route", "method", "status"))
+HTTP_DURATION = Histogram(
+    "conduction_http_request_duration_seconds",
+    "Time from the start of request handling to the response object, s.",
+    ("family", "route", "status"), buckets=LATENCY_BUCKETS)
+IN_FLIGHT = Gauge(
+    "conduction_http_requests_in_flight", "Requests being served.",
+    multiprocess_mode="livesum")
+SOLVE_DURATION = Histogram(
+    "conduction_solve_duration_seconds", "Time in the solver proper, per solve, s.",
+    ("family", "method", "outcome"), buckets=LATENCY_BUCKETS)
+SERIES_TERMS = Histogram(
+    "conduction_series_terms", "Series terms used per solve (Convergence.terms).",
+    ("family",), buckets=TERM_BUCKETS)
+GRID_CELLS = Histogram(
+    "conduction_grid_cells", "Grid cells per solve (Convergence.cells).",
+    ("family",), buckets=CELL_BUCKETS)
+SOLVER_ITERATIONS = Histogram(
+    "conduction_solver_iterations", "Solver iterations per solve (Convergence.iterations).",
+    ("family",), buckets=ITERATION_BUCKETS)
+TIME_BUDGET_EXCEEDED = Counter(
+    "conduction_time_budget_exceeded_total",
+    "Requests stopped because they used up the per-request time budget.", ("route",))
+AUTH_FAILURES = Counter(
+    "conduction_auth_failures_total", "Requests refused by the API-key check.", ("reason",))
+BUILD_INFO = Gauge(
+    "conduction_build_info", "Service version (value always 1).", ("version",),
+    multiprocess_mode="max")
+
+
+#: Decided once, at import, as prometheus-client decides where its samples live.
+_MULTIPROCESS = bool(os.environ.get(MULTIPROCESS_ENV))
+
+
+def multiprocess_enabled() -> bool:
+    return _MULTIPROCESS
+
+
+def observe_solve(kind: str, method: str, convergence: Convergence, seconds: float) -> None:
+    """Record one solve: solver time, and the terms, cells and iterations it reports."""
+    SOLVE_DURATION.labels(kind, method, convergence.status).observe(seconds)
+    if convergence.terms is not None:
+        SERIES_TERMS.labels(kind).observe(convergence.terms)
+    if convergence.cells is not None:
+        GRID_CELLS.labels(kind).observe(convergence.cells)
+    if convergence.iterations is not None:
+        SOLVER_ITERATIONS.labels(kind).observe(convergence.iterations)
+
+
+def exposition() -> tuple[bytes, str]:
+    """The current metrics in the Prometheus text format, merged over workers if need be."""
+    if multiprocess_enabled():
+        registry = CollectorRegistry()
+        _multiprocess.MultiProcessCollector(registry)  # type: ignore[no-untyped-call]
+        return generate_latest(registry), CONTENT_TYPE_LATEST
+    return generate_latest(REGISTRY), CONTENT_TYPE_LATEST
+
+
+def family_routes() -> dict[str, str]:
+    """URL rule -> solve family, from the families registered so far."""
+    from service.api.common import FAMILIES
+
+    return {family.path: kind for kind, family in FAMILIES.items()}
+
+
+def install(app: Flask) -> None:
+    """Count and time every request, and serve GET /metrics."""
+    from flask import Blueprint, Response, g, request
+
+    BUILD_INFO.labels(__version__).set(1)
+
+    @app.before_request
+    def _start() -> None:
+        rule = request.url_rule.rule if request.url_rule is not None else "unmatched"
+        g.route = rule
+        g.family = family_routes().get(rule, "")
+        IN_FLIGHT.inc()
+        g.in_flight = True
+
+    @app.after_request
+    def _count(response: Response) -> Response:
+        status = str(response.status_code)
+        route, family = g.get("route", "unmatched"), g.get("family", "")
+        method = request.method if request.method in STANDARD_METHODS else "other"
+        HTTP_REQUESTS.labels(family, route, method, status).inc()
+        started = g.get("started")
+        if started is not None:
+            HTTP_DURATION.labels(family, route, status).observe(time.perf_counter() - started)
+        return response
+
+    @app.teardown_request
+    def _done(exc: BaseException | None) -> None:
+        if g.pop("in_flight", False):
+            IN_FLIGHT.dec()
+
+    bp = Blueprint("ops_metrics", __name__)
+
+    @bp.get("/metrics")
+    def metrics() -> Any:
+        body, content_type = exposition()
+        return Response(body, content_type=content_type)
+
+    app.register_blueprint(bp)
