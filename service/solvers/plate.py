@@ -14,6 +14,16 @@ Stages (each a named function, testable alone):
    `sum_series` -- one series per edge carrying data, with the number of terms chosen per point
    (per row on a grid) from the tail bound;
 5. `edge_heat_flows`, extremes and safety.
+
+Speed. A solve does each piece of work once and for all series together: `stack_modes` builds
+the eigenvalues, coefficients and summation weights of every series in one pass (the same
+stages as above, on stacked arrays), cached per solve by length and shared by the flows and the
+evaluations; the truncation rule is evaluated for every series and point at once; sums are
+single products over (series, point, mode) with each point's own term count; sines on even grids
+come from angle addition. Without generation the extremes are looked for only where the maximum
+principle allows them (flux and convection edges), in the same pass as the requested points.
+Module caches: `_ladder` and `_coarse_ladder` (read-only integer arrays, LRU, 16 entries each)
+and the eigenvalue tables of `service.solvers.eigen`.
 """
 
 from __future__ import annotations
@@ -36,7 +46,8 @@ EDGE_NAMES = ("bottom", "right", "top", "left")
 EDGE_TYPES = ("temperature", "flux", "convection", "insulated")
 #: Default relative tolerance: atol = DEFAULT_RTOL * the largest temperature difference.
 DEFAULT_RTOL = 1e-6
-#: Samples per direction used to locate the extremes when no output grid is asked.
+#: Samples per edge (or per direction, with generation) used to locate the extremes when no output
+#: grid at least this fine is asked.
 EXTREMES_SAMPLES = 33
 #: Largest (points x terms) block evaluated at once, to bound memory (about 16 MB of floats).
 _BLOCK = 2_000_000
@@ -1244,7 +1255,10 @@ def _tail_params(subs: list[SubProblem], consts: list[TailConstants]) -> _TailPa
                        c.f_end, biot(s.start), biot(s.end), s.kind == "D", s.kind == "N")
                       for s, c in zip(subs, consts, strict=True)], dtype=float).reshape(-1, 12)
     cols = [table[:, i].reshape(-1, 1, 1) for i in range(12)]
-    return _TailParams(*cols[:10], cols[10] > 0.0, cols[11] > 0.0)
+    return _TailParams(length=cols[0], depth=cols[1], conductivity=cols[2], film=cols[3],
+                       v1=cols[4], v2=cols[5], f_start=cols[6], f_end=cols[7],
+                       biot_start=cols[8], biot_end=cols[9], is_d=cols[10] > 0.0,
+                       is_n=cols[11] > 0.0)
 
 
 def _tail_core(p: _TailParams, terms: _Array, t: _Array) -> _Array:
@@ -1404,9 +1418,9 @@ def series_weights(sub: SubProblem, modes: Modes) -> SeriesWeights:
     p, q = scale * (a + b), scale * (a - b)
     alpha = beta = 0.0
     if mu.size and mu[0] == 0.0:
-        y0, bop = _linear_mode(sub)
+        y0, b0p = _linear_mode(sub)
         a0 = float(y0(np.array(0.0)))
-        alpha, beta = c[0] * a0 / bop, c[0] * (float(y0(np.array(1.0))) - a0) / bop
+        alpha, beta = c[0] * a0 / b0p, c[0] * (float(y0(np.array(1.0))) - a0) / b0p
         p[0] = q[0] = 0.0
     return SeriesWeights(mu, modes.phase, lam, p, q, float(alpha), float(beta), d)
 
@@ -1509,7 +1523,7 @@ def sum_series_grid(sub: SubProblem, modes: Modes, sigma: _Array, t: _Array,
 
 
 class ModeStack(NamedTuple):
-    """The first `count` modes of several sub-problems, stacked (S, count).
+    """The first `size` modes of several sub-problems, stacked (S, size).
 
     Eigenvalues mu, phases phi (X_n = sin(mu_n sigma + phi_n)), norms, coefficients c_n; the
     perpendicular weights of `SeriesWeights` (p, q, and far = e^{-2 lam depth}); and for the flows
@@ -1517,7 +1531,7 @@ class ModeStack(NamedTuple):
     Columns (S, 1): linear-mode constants alpha, beta and the depth.
     """
 
-    count: int
+    size: int
     mu: _Array
     phase: _Array
     norm: _Array
@@ -1598,7 +1612,11 @@ def stack_modes(subs: list[SubProblem], count: int) -> ModeStack:
         poly[i, :s.data.poly.size] = s.data.poly
     d0 = poly * _DERIVATIVES_AT_0
     d1 = poly @ _DERIVATIVES_AT_1.T
-    profiles = [(i, s.data._profile()) for i, s in enumerate(subs) if s.data._profile()]
+    profiles: list[tuple[int, tuple[_Array, _Array]]] = []
+    for i, s in enumerate(subs):
+        prof = s.data._profile()
+        if prof is not None:
+            profiles.append((i, prof))
     for i, (brk, vals) in profiles:
         slopes = np.diff(vals) / np.diff(brk)
         d0[i, :2] += (vals[0], slopes[0])
@@ -1665,7 +1683,7 @@ def _stack_flow_terms(stack: ModeStack, subs: list[SubProblem],
     half = np.sqrt(stack.far)  # e^{-lam depth}
     # int_0^1 X_n = (cos phi - cos(mu + phi)) / mu
     along = (stack.cos0 - stack.cos1) / mu_nz
-    out = np.empty((len(rows), stack.count))
+    out = np.empty((len(rows), stack.size))
     for r, (i, name, kind) in enumerate(rows):
         sub = subs[i]
         f = _FRAMES[sub.edge]
@@ -2456,7 +2474,7 @@ def _find_extremes(model: PlateSeries, sets: list[_Samples],
     seeds: list[_Seed] = []
     for sign in (1.0, -1.0):
         if sets:
-            best = max(sets, key=lambda s, sg=sign: sg * float(np.max(sg * s.temp)))
+            best = max(sets, key=lambda s: sign * float(np.max(sign * s.temp)))
             seeds.append(_seed(model, best, sign))
     nbody = len(seeds)
     exposed = [n for n in EDGE_NAMES if model.cond[n].kind == "R"] if surfaces else []
