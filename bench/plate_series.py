@@ -1,27 +1,54 @@
 """Plate series solver timings (prints figures; not a test).
 
-Run from the repository root:  OPENBLAS_NUM_THREADS=1 python bench/plate_series.py
+Run from the repository root:  python bench/plate_series.py [--quick]
 
-For a one-hot-edge square and for a mixed-edges plate with generation, times `solve_plate` on
-101 x 101 and 501 x 501 output grids at the default tolerance (target: at most 5 ms for 101 x 101),
-and the stages: building the series (data, coefficients' constants), the grid summation, the
-edge heat flows and the rest (extremes with local refinement, safety). Reports the minimum and
-the median of repeated runs (the minimum is the figure to compare on a shared machine).
+Times `solve_plate` (solver time only, no HTTP or JSON) at the default tolerance for:
+
+* light requests: 5 points, no output grid (a bottom-fixed plate with convective right and top
+  edges; and the 5-point request of bench/http_throughput.py), the latter also with a new film
+  coefficient on every run so that the eigenvalue cache never hits;
+* a one-hot-edge square and a mixed-edges plate with generation on 101 x 101 and 501 x 501 output
+  grids (target: at most 5 ms for 101 x 101, both cases).
+
+And the stages in the order `solve_plate` runs them: building the series (data, constants), the
+edge heat flows (their mode tables then serve the evaluations), the grid summation, and the rest
+(points, extremes with their samples and refinement, safety). Reports the minimum and the median
+of repeated runs and the load average, since the machine is shared: compare minima.
+OPENBLAS_NUM_THREADS is set to 1 (as for the server's workers) unless already set.
 """
 
 from __future__ import annotations
 
 import os
-import statistics
-import sys
-import time
-from collections.abc import Callable
+
+os.environ.setdefault("OPENBLAS_NUM_THREADS", "1")
+
+import argparse  # noqa: E402
+import dataclasses  # noqa: E402
+import statistics  # noqa: E402
+import sys  # noqa: E402
+import time  # noqa: E402
+from collections.abc import Callable  # noqa: E402
 
 sys.path.insert(0, os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
 
 import numpy as np  # noqa: E402
 
 from service.solvers.plate import Edge, PlateProblem, PlateSeries, solve_plate  # noqa: E402
+
+LIGHT = PlateProblem(  # a furnace door frame: hot sill, cooled jamb and head
+    width=0.6, height=1.0, conductivity=52.0,
+    bottom=Edge("temperature", value=100.0), left=Edge("insulated"),
+    right=Edge("convection", film_coefficient=750.0, ambient=0.0),
+    top=Edge("convection", film_coefficient=20.0, ambient=15.0),
+    points=((0.6, 0.2), (0.3, 0.5), (0.1, 0.1), (0.5, 0.9), (0.0, 0.0)))
+
+HTTP_5 = PlateProblem(  # the 5-point request of bench/http_throughput.py
+    width=0.6, height=1.0, conductivity=52.0,
+    bottom=Edge("temperature", value=100.0), left=Edge("insulated"),
+    right=Edge("convection", film_coefficient=750.0, ambient=0.0),
+    top=Edge("flux", value=-200.0),
+    points=((0.1, 0.1), (0.3, 0.5), (0.5, 0.9), (0.6, 0.2), (0.0, 1.0)))
 
 ONE_HOT = PlateProblem(  # a kiln door lining cross-section, hot face at the bottom
     width=0.4, height=0.4, conductivity=1.2,
@@ -35,46 +62,78 @@ MIXED = PlateProblem(  # an electrically heated bus-bar clamp
     top=Edge("flux", value=-1500.0), left=Edge("insulated"))
 
 
-def timed(fn: Callable[[], object], repeat: int) -> tuple[float, float]:
-    """(minimum, median) wall time in ms."""
-    fn()  # warm the eigenvalue cache and imports
+def timed(fn: Callable[[int], object], repeat: int) -> tuple[float, float]:
+    """(minimum, median) wall time in ms; fn gets the run number."""
+    fn(-1)  # warm imports and the eigenvalue cache
     times = []
-    for _ in range(repeat):
+    for i in range(repeat):
         start = time.perf_counter()
-        fn()
+        fn(i)
         times.append((time.perf_counter() - start) * 1e3)
     return min(times), statistics.median(times)
 
 
+def stages(problem: PlateProblem, repeat: int) -> tuple[float, float, float]:
+    """Minimum times (ms) of building, building + flows, building + flows + grid."""
+    def build(_: int) -> None:
+        PlateSeries(problem)
+
+    def flows(_: int) -> None:
+        PlateSeries(problem).edge_heat_flows()
+
+    def grid(_: int) -> None:
+        model = PlateSeries(problem)
+        model.edge_heat_flows()
+        if problem.grid is not None:
+            model.grid(np.linspace(0.0, problem.width, problem.grid[0]),
+                       np.linspace(0.0, problem.height, problem.grid[1]))
+
+    return timed(build, repeat)[0], timed(flows, repeat)[0], timed(grid, repeat)[0]
+
+
 def main() -> None:
-    print(f"numpy {np.__version__}, OPENBLAS_NUM_THREADS={os.environ.get('OPENBLAS_NUM_THREADS')}")
-    print(f"{'case':<10} {'grid':>8} {'solve min':>10} {'median':>8} {'build':>7} {'sum':>7} "
-          f"{'flows':>7} {'rest':>7} {'terms':>6} {'err/atol':>9}")
+    parser = argparse.ArgumentParser()
+    parser.add_argument("--quick", action="store_true", help="fewer repeats")
+    args = parser.parse_args()
+    scale = 0.2 if args.quick else 1.0
+    load_before = os.getloadavg()
+    print(f"numpy {np.__version__}, OPENBLAS_NUM_THREADS={os.environ.get('OPENBLAS_NUM_THREADS')}"
+          f", load average {load_before[0]:.2f} {load_before[1]:.2f} {load_before[2]:.2f}")
+    print(f"{'case':<24} {'grid':>8} {'solve min':>10} {'median':>8} {'build':>7} {'flows':>7} "
+          f"{'sum':>7} {'rest':>7} {'terms':>6} {'err/atol':>9}")
+    films = 750.0 * (1.0 + 1e-3 * np.arange(1, 100_000))
+    cases: list[tuple[str, PlateProblem, int, bool]] = [
+        ("light, 5 points", LIGHT, 400, False),
+        ("http case, 5 points", HTTP_5, 400, False),
+        ("http case, new Biot", HTTP_5, 200, True),
+    ]
     for name, base in (("one-hot", ONE_HOT), ("mixed+gen", MIXED)):
         for n in (101, 501):
-            problem = PlateProblem(**{**base.__dict__, "grid": (n, n)})
-            repeat = 30 if n == 101 else 5
-            solve_min, solve_med = timed(lambda p=problem: solve_plate(p), repeat)
-            build, _ = timed(lambda p=problem: PlateSeries(p), repeat)
-            gx = np.linspace(0.0, problem.width, n)
-            gy = np.linspace(0.0, problem.height, n)
+            cases.append((name, dataclasses.replace(base, grid=(n, n)), 40 if n == 101 else 8,
+                          False))
+    for name, problem, repeat, new_biot in cases:
+        repeat = max(3, int(repeat * scale))
 
-            def build_and_sum(p: PlateProblem = problem, gx: np.ndarray = gx,
-                              gy: np.ndarray = gy) -> None:
-                PlateSeries(p).grid(gx, gy)
+        def run(i: int, p: PlateProblem = problem, vary: bool = new_biot) -> None:
+            if vary:  # a film coefficient never seen before: eigenvalues computed afresh
+                p = dataclasses.replace(p, right=Edge("convection",
+                                                      film_coefficient=float(films[i + 1]),
+                                                      ambient=0.0))
+            solve_plate(p)
 
-            def build_and_flows(p: PlateProblem = problem) -> None:
-                PlateSeries(p).edge_heat_flows()
-
-            with_sum, _ = timed(build_and_sum, repeat)
-            with_flows, _ = timed(build_and_flows, repeat)
-            result = solve_plate(problem)
-            conv = result.convergence
-            summ, flows = with_sum - build, with_flows - build
-            rest = solve_min - build - summ - flows
-            print(f"{name:<10} {n:>4}x{n:<3} {solve_min:>8.2f}ms {solve_med:>6.2f}ms "
-                  f"{build:>5.2f}ms {summ:>5.2f}ms {flows:>5.2f}ms {rest:>5.2f}ms "
-                  f"{conv.terms:>6} {conv.error_estimate / conv.atol:>9.3f}")
+        solve_min, solve_med = timed(run, repeat)
+        build, with_flows, with_grid = stages(problem, repeat)
+        conv = solve_plate(problem).convergence
+        grid = "-" if problem.grid is None else f"{problem.grid[0]}x{problem.grid[1]}"
+        flows, summed = with_flows - build, with_grid - with_flows
+        rest = solve_min - (with_grid if problem.grid is not None else with_flows)
+        sum_text = "-" if problem.grid is None else f"{summed:.2f}ms"
+        print(f"{name:<24} {grid:>8} {solve_min:>8.2f}ms {solve_med:>6.2f}ms "
+              f"{build:>5.2f}ms {flows:>5.2f}ms {sum_text:>7} {rest:>5.2f}ms "
+              f"{conv.terms:>6} {conv.error_estimate / conv.atol:>9.3f}")
+    load_after = os.getloadavg()
+    print(f"load average after: {load_after[0]:.2f} {load_after[1]:.2f} {load_after[2]:.2f}"
+          " (2 cores; figures above ~1 mean other work shared the machine)")
 
 
 if __name__ == "__main__":

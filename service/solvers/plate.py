@@ -14,6 +14,16 @@ Stages (each a named function, testable alone):
    `sum_series` -- one series per edge carrying data, with the number of terms chosen per point
    (per row on a grid) from the tail bound;
 5. `edge_heat_flows`, extremes and safety.
+
+Speed. A solve does each piece of work once and for all series together: `stack_modes` builds
+the eigenvalues, coefficients and summation weights of every series in one pass (the same
+stages as above, on stacked arrays), cached per solve by length and shared by the flows and the
+evaluations; the truncation rule is evaluated for every series and point at once; sums are
+single products over (series, point, mode) with each point's own term count; sines on even grids
+come from angle addition. Without generation the extremes are looked for only where the maximum
+principle allows them (flux and convection edges), in the same pass as the requested points.
+Module caches: `_ladder` and `_coarse_ladder` (read-only integer arrays, LRU, 16 entries each)
+and the eigenvalue tables of `service.solvers.eigen`.
 """
 
 from __future__ import annotations
@@ -36,7 +46,8 @@ EDGE_NAMES = ("bottom", "right", "top", "left")
 EDGE_TYPES = ("temperature", "flux", "convection", "insulated")
 #: Default relative tolerance: atol = DEFAULT_RTOL * the largest temperature difference.
 DEFAULT_RTOL = 1e-6
-#: Samples per direction used to locate the extremes when no output grid is asked.
+#: Samples per edge (or per direction, with generation) used to locate the extremes when no output
+#: grid at least this fine is asked.
 EXTREMES_SAMPLES = 33
 #: Largest (points x terms) block evaluated at once, to bound memory (about 16 MB of floats).
 _BLOCK = 2_000_000
@@ -1244,7 +1255,10 @@ def _tail_params(subs: list[SubProblem], consts: list[TailConstants]) -> _TailPa
                        c.f_end, biot(s.start), biot(s.end), s.kind == "D", s.kind == "N")
                       for s, c in zip(subs, consts, strict=True)], dtype=float).reshape(-1, 12)
     cols = [table[:, i].reshape(-1, 1, 1) for i in range(12)]
-    return _TailParams(*cols[:10], cols[10] > 0.0, cols[11] > 0.0)
+    return _TailParams(length=cols[0], depth=cols[1], conductivity=cols[2], film=cols[3],
+                       v1=cols[4], v2=cols[5], f_start=cols[6], f_end=cols[7],
+                       biot_start=cols[8], biot_end=cols[9], is_d=cols[10] > 0.0,
+                       is_n=cols[11] > 0.0)
 
 
 def _tail_core(p: _TailParams, terms: _Array, t: _Array) -> _Array:
@@ -1356,17 +1370,17 @@ def choose_terms(sub: SubProblem, consts: TailConstants, t: _Array, budget: floa
 
 
 def _buckets(terms: _Array) -> list[tuple[int, _Array]]:
-    """Group the indices with terms > 0 by count rounded up to a power of two (one group when
-    the counts are all <= 64 or within a factor 2): (largest count, indices) per group. The
-    sums mask each point's modes beyond its own count, so grouping only saves work."""
+    """Group the indices with terms > 0 by count: up to 64, then up to 256, 1024, ... (one group
+    when the counts are within a factor 4): (largest count, indices) per group. The sums mask
+    each point's modes beyond its own count, so grouping only saves work."""
     pos = np.flatnonzero(terms > 0)
     if pos.size == 0:
         return []
     sel = terms[pos]
     hi, lo = int(sel.max()), int(sel.min())
-    if hi <= 64 or 2 * lo > hi:
+    if hi <= 64 or 4 * lo > hi:
         return [(hi, pos)]
-    key = np.ceil(np.log2(sel))
+    key = np.maximum(np.ceil(np.log2(sel) / 2.0), 3.0)  # 64 = 4^3, then powers of 4
     return [(int(terms[pos[key == kv]].max()), pos[key == kv]) for kv in np.unique(key)]
 
 
@@ -1404,9 +1418,9 @@ def series_weights(sub: SubProblem, modes: Modes) -> SeriesWeights:
     p, q = scale * (a + b), scale * (a - b)
     alpha = beta = 0.0
     if mu.size and mu[0] == 0.0:
-        y0, bop = _linear_mode(sub)
+        y0, b0p = _linear_mode(sub)
         a0 = float(y0(np.array(0.0)))
-        alpha, beta = c[0] * a0 / bop, c[0] * (float(y0(np.array(1.0))) - a0) / bop
+        alpha, beta = c[0] * a0 / b0p, c[0] * (float(y0(np.array(1.0))) - a0) / b0p
         p[0] = q[0] = 0.0
     return SeriesWeights(mu, modes.phase, lam, p, q, float(alpha), float(beta), d)
 
@@ -1449,7 +1463,7 @@ def _sine_table(mu: _Array, phase: _Array, sigma: _Array) -> _Array:
     rounding error grows by about one ulp per step.
     """
     m = sigma.size
-    if m < 8:
+    if m < 16 or mu.size < 128:  # the doubling's dozens of calls cost more than the sines
         return np.sin(sigma[:, None] * mu + phase)
     step = (sigma[-1] - sigma[0]) / (m - 1)
     if not step > 0.0 or float(np.abs(np.diff(sigma) - step).max()) > 1e-13:
@@ -1509,7 +1523,7 @@ def sum_series_grid(sub: SubProblem, modes: Modes, sigma: _Array, t: _Array,
 
 
 class ModeStack(NamedTuple):
-    """The first `count` modes of several sub-problems, stacked (S, count).
+    """The first `size` modes of several sub-problems, stacked (S, size).
 
     Eigenvalues mu, phases phi (X_n = sin(mu_n sigma + phi_n)), norms, coefficients c_n; the
     perpendicular weights of `SeriesWeights` (p, q, and far = e^{-2 lam depth}); and for the flows
@@ -1517,7 +1531,7 @@ class ModeStack(NamedTuple):
     Columns (S, 1): linear-mode constants alpha, beta and the depth.
     """
 
-    count: int
+    size: int
     mu: _Array
     phase: _Array
     norm: _Array
@@ -1598,7 +1612,11 @@ def stack_modes(subs: list[SubProblem], count: int) -> ModeStack:
         poly[i, :s.data.poly.size] = s.data.poly
     d0 = poly * _DERIVATIVES_AT_0
     d1 = poly @ _DERIVATIVES_AT_1.T
-    profiles = [(i, s.data._profile()) for i, s in enumerate(subs) if s.data._profile()]
+    profiles: list[tuple[int, tuple[_Array, _Array]]] = []
+    for i, s in enumerate(subs):
+        prof = s.data._profile()
+        if prof is not None:
+            profiles.append((i, prof))
     for i, (brk, vals) in profiles:
         slopes = np.diff(vals) / np.diff(brk)
         d0[i, :2] += (vals[0], slopes[0])
@@ -1665,7 +1683,7 @@ def _stack_flow_terms(stack: ModeStack, subs: list[SubProblem],
     half = np.sqrt(stack.far)  # e^{-lam depth}
     # int_0^1 X_n = (cos phi - cos(mu + phi)) / mu
     along = (stack.cos0 - stack.cos1) / mu_nz
-    out = np.empty((len(rows), stack.count))
+    out = np.empty((len(rows), stack.size))
     for r, (i, name, kind) in enumerate(rows):
         sub = subs[i]
         f = _FRAMES[sub.edge]
@@ -1866,7 +1884,35 @@ class PlateSeries:
     def choose(self, t: _Array) -> tuple[_Array, _Array]:
         """Truncation rule for every series at once: t (S, Q) distances from each series' data
         edge, m -> (terms, tail bound K), both (S, Q)."""
+        if t.size * self._ladder.size <= 8192:  # few points: one pass costs less
+            return _pick(_tail_core(self._tail, self._ladder, t), self._ladder, self.budget)
         return _pick_coarse_fine(self._tail, self._ladder, t, self.budget)
+
+    def _choose_rows(self, rows: list[_Array]) -> tuple[_Array, _Array]:
+        """The truncation rule for many rows of one distance each (per series), evaluated at
+        a few distances only: 0 and about 25 % steps from the smallest positive one. Each row
+        takes the count and bound of the largest of those not above its own distance; the
+        bound does not increase with the distance, so they hold for the row (with at most
+        about 25 % more terms than it needs). Returns (terms, bound), (S, max rows)."""
+        size = max(r.size for r in rows)
+        picks, where = [], []
+        for r in rows:
+            pos = r[r > 0.0]
+            lo = float(pos.min()) if pos.size else 1.0
+            steps = int(math.ceil(math.log(max(float(r.max()), lo) / lo) / math.log(1.25)))
+            levels = lo * 1.25 ** np.arange(steps + 1)
+            levels = np.concatenate(([0.0], levels[levels <= r.max()]))
+            picks.append(levels)
+            where.append(np.searchsorted(levels, r, side="right") - 1)
+        width = max(v.size for v in picks)
+        t = np.array([np.concatenate((v, np.full(width - v.size, v[-1]))) for v in picks])
+        terms, bound = self.choose(t)
+        out_terms = np.zeros((len(rows), size), dtype=terms.dtype)
+        out_bound = np.zeros((len(rows), size))
+        for i, idx in enumerate(where):
+            out_terms[i, :idx.size] = terms[i, idx]
+            out_bound[i, :idx.size] = bound[i, idx]
+        return out_terms, out_bound
 
     def _local(self, x: _Array, y: _Array) -> tuple[_Array, _Array]:
         """(sigma, t) of points in each series' frame, (S, P) each, clipped to the plate."""
@@ -1893,12 +1939,17 @@ class PlateSeries:
 
     def _weights_for(self, i: int, n: int) -> SeriesWeights:
         """Summation weights of series i holding at least n terms: a row of a stack built
-        already, else the series' own table."""
-        full = tuple(range(len(self.series)))
-        have = [c for c, sub in self._stacks if sub == full and c >= n]
-        if have and min(have) <= _root_count(n, self.problem.max_terms):
-            return _stack_row(self._stack(min(have)), i)
-        return self.series[i].weights(n)
+        already (not more than 4 times longer than needed), else of the all-series stack of
+        `_root_count(n)` terms when that is the shortest (the flows start there), else of a
+        stack of this series alone."""
+        want = _root_count(n, self.problem.max_terms)
+        have = [(c, sub) for c, sub in self._stacks if i in sub and n <= c <= 4 * want]
+        if have:
+            c, sub = min(have)
+            return _stack_row(self._stack(c, sub), sub.index(i))
+        if want == _root_count(1, self.problem.max_terms):
+            return _stack_row(self._stack(want), i)
+        return _stack_row(self._stack(want, (i,)), 0)
 
     # ------------------------------------------------------------------ evaluation
     def _fixed_edges(self, x: _Array, y: _Array) -> tuple[_Array, _Array]:
@@ -1980,10 +2031,7 @@ class PlateSeries:
                 f = _FRAMES[ser.sub.edge]
                 a = gy if f.along_x else gx
                 across.append(np.clip(ser.sub.depth - a if f.far else a, 0.0, ser.sub.depth))
-            q = max(a.size for a in across)
-            tq = np.array([np.pad(a, (0, q - a.size), constant_values=a[-1] if a.size else 0.0)
-                           for a in across])
-            terms_all, bound_all = self.choose(tq)
+            terms_all, bound_all = self._choose_rows(across)
             for i, ser in enumerate(self.series):
                 f = _FRAMES[ser.sub.edge]
                 t = across[i]
@@ -2171,8 +2219,8 @@ def settle_flow_series(terms: _Array, tol: _Array,
             p = np.rint(rate[:, -1])
             steady = (np.all(r[:, 1:] > 1.5, axis=1) & (p >= 1.0)
                       & (np.abs(rate[:, -1] - p) < 0.1) & (np.abs(rate[:, -2] - p) < 0.2))
-            upper = _richardson(s[:, 2:], p)
-            lower = _richardson(s[:, 1:5], p)
+            both = _richardson(np.concatenate((s[:, 2:], s[:, 1:5])), np.concatenate((p, p)))
+            upper, lower = both[:p.size], both[p.size:]
             rich = ~ok & steady & (np.abs(upper - lower) <= tol)
             growth = np.where(steady & (np.abs(upper - lower) <= tol * 2.0 ** (p + 2)), 2, 4)
         values = np.where(rich, upper, values)
@@ -2426,7 +2474,7 @@ def _find_extremes(model: PlateSeries, sets: list[_Samples],
     seeds: list[_Seed] = []
     for sign in (1.0, -1.0):
         if sets:
-            best = max(sets, key=lambda s, sg=sign: sg * float(np.max(sg * s.temp)))
+            best = max(sets, key=lambda s: sign * float(np.max(sign * s.temp)))
             seeds.append(_seed(model, best, sign))
     nbody = len(seeds)
     exposed = [n for n in EDGE_NAMES if model.cond[n].kind == "R"] if surfaces else []
@@ -2546,6 +2594,10 @@ def solve_plate(problem: PlateProblem) -> PlateResult:
     w, h = p.width, p.height
     warnings: list[str] = []
 
+    # flows first: their mode tables (256 terms of every series, more for slow ones) then
+    # serve the evaluations below
+    flows = model.edge_heat_flows()
+
     pts = np.asarray(p.points, dtype=float).reshape(-1, 2)
     pts = np.array((np.clip(pts[:, 0], 0.0, w), np.clip(pts[:, 1], 0.0, h))).T.reshape(-1, 2)
     npts = pts.shape[0]
@@ -2555,9 +2607,11 @@ def solve_plate(problem: PlateProblem) -> PlateResult:
     meshes = [(np.tile(gx_l, gy_l.size).reshape(gy_l.size, gx_l.size),
                np.repeat(gy_l, gx_l.size).reshape(gy_l.size, gx_l.size)) for gx_l, gy_l in lines]
     # one pass for the points and the sample lines, terms chosen per point
-    temp, err, terms = model._evaluate(
-        np.concatenate([pts[:, 0]] + [m[0].ravel() for m in meshes]),
-        np.concatenate([pts[:, 1]] + [m[1].ravel() for m in meshes]), None)
+    temp, err, terms = np.zeros(0), np.zeros(0), np.zeros((0, 0), int)
+    if npts or meshes:
+        temp, err, terms = model._evaluate(
+            np.concatenate([pts[:, 0]] + [m[0].ravel() for m in meshes]),
+            np.concatenate([pts[:, 1]] + [m[1].ravel() for m in meshes]), None)
     point_t, point_err = temp[:npts], err[:npts]
     most = int(terms[:, :npts].max(initial=0))
     errors = [float(point_err.max(initial=0.0))]
@@ -2587,8 +2641,7 @@ def solve_plate(problem: PlateProblem) -> PlateResult:
     most = max(most, ext.most)
     error_estimate = max(errors)
 
-    # flows and balance
-    flows = model.edge_heat_flows()
+    # balance
     gen = p.generation * w * h
     finite = [v for v in flows.values() if v is not None]
     if all(v is not None for v in flows.values()):

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import dataclasses
 
+import mpmath
 import numpy as np
 import pytest
 from scipy import integrate
@@ -559,3 +560,134 @@ def test_flows_do_not_depend_on_the_point_request() -> None:
     a = solve_plate(EXAMPLE).edge_heat_flow
     b = solve_plate(dataclasses.replace(EXAMPLE, points=(), grid=(3, 3))).edge_heat_flow
     assert a == b
+
+
+# --------------------------------------------------------------------------- fast paths
+
+
+ALL_SIDES_INSULATED = PlateProblem(  # zero root: both ends of the bottom eigenfunctions insulated
+    0.3, 0.2, 12.0, bottom=Edge("temperature", profile=((0.0, 10.0), (0.1, 30.0), (0.3, 5.0))),
+    top=conv(10.0, 20.0), left=INSULATED, right=INSULATED)
+
+
+@pytest.mark.parametrize("problem", [
+    MIXED, EXAMPLE, ref.FIN_ROOT, ref.PROFILED, ALL_SIDES_INSULATED,
+    PlateProblem(0.3, 0.2, 15.0, bottom=Edge("temperature", profile=WAVY), top=fixed(20.0),
+                 left=conv(10.0, 20.0), right=INSULATED),
+], ids=["mixed", "example", "fin-root", "profiled", "zero-root", "wavy-profile"])
+def test_stacked_modes_match_the_one_series_stages(problem: PlateProblem) -> None:
+    """All series at once (`stack_modes`) against one series at a time (`edge_eigenvalues`,
+    `edge_coefficients`, `series_weights`, `flow_terms`): consistency of two implementations
+    in this module, not an outside value."""
+    model = PlateSeries(problem)
+    subs = [s.sub for s in model.series]
+    stack = plate.stack_modes(subs, 512)
+    for i, sub in enumerate(subs):
+        mu, ph, norm = plate.edge_eigenvalues(sub, 512)
+        coef = plate.edge_coefficients(sub, mu, ph, norm)
+        modes = plate.Modes(mu, ph, norm, coef)
+        w = plate.series_weights(sub, modes)
+        scale = float(np.abs(coef).max())
+        np.testing.assert_allclose(stack.mu[i], mu, rtol=0.0, atol=0.0)
+        np.testing.assert_allclose(stack.phase[i], ph, rtol=1e-15, atol=1e-15)
+        np.testing.assert_allclose(stack.coef[i], coef, rtol=0.0, atol=1e-13 * scale)
+        # the summation weights through the sums they give on a small grid
+        sigma, t = np.linspace(0.0, 1.0, 11), np.linspace(0.0, sub.depth, 5)
+        full = np.full(t.size, 512)
+        one_u = plate._sum_rows(w, sigma, t, full)
+        stack_u = plate._sum_rows(plate._stack_row(stack, i), sigma, t, full)
+        np.testing.assert_allclose(stack_u, one_u, rtol=0.0,
+                                   atol=1e-12 * float(np.abs(one_u).max() + scale))
+        targets = [(n, model.cond[n].kind) for n in plate.EDGE_NAMES
+                   if model.cond[n].kind != "N"]
+        one = plate.flow_terms(sub, modes, targets)
+        both = plate._stack_flow_terms(stack, subs, [(i, n, k) for n, k in targets])
+        np.testing.assert_allclose(both, one, rtol=0.0,
+                                   atol=1e-11 * float(np.abs(one).max(initial=1e-300)))
+
+
+def test_coarse_to_fine_truncation_equals_the_full_ladder() -> None:
+    # the bound falls with the count, so bracketing on every 4th count then searching the
+    # three below finds the same count (and bound) as scanning the whole ladder (consistency)
+    rng = np.random.default_rng(7)
+    for problem in (MIXED, ref.BRACKET, dataclasses.replace(MIXED, max_terms=100)):
+        model = PlateSeries(problem)
+        t = rng.random((len(model.series), 500)) ** 4 * model._depth
+        t[:, :3] = 0.0
+        terms, bound = plate._pick_coarse_fine(model._tail, model._ladder, t, model.budget)
+        full = plate._pick(plate._tail_core(model._tail, model._ladder, t), model._ladder,
+                           model.budget)
+        np.testing.assert_allclose(terms, full[0], rtol=0.0, atol=0.0)
+        np.testing.assert_allclose(bound, full[1], rtol=0.0, atol=0.0)
+
+
+def test_sine_table_by_doubling_matches_numpy_sine() -> None:
+    mu = np.arange(1, 301) * np.pi - 0.3 / np.arange(1, 301)
+    phase = np.arctan2(mu, 4.0)
+    sigma = np.linspace(0.0, 1.0, 101)
+    # angle addition against the direct sine (common practice, no source)
+    np.testing.assert_allclose(plate._sine_table(mu, phase, sigma),
+                               np.sin(sigma[:, None] * mu + phase), rtol=0.0, atol=1e-12)
+
+
+def test_settled_flow_series_extrapolates_algebraic_tails() -> None:
+    n = np.arange(1, 2049, dtype=float)
+    rows = np.array([1.0 / n**3,                                   # tail ~ N^-2
+                     (1.0 + (-1.0) ** n / n) / n**3,               # period-2 part, tail ~ N^-2
+                     np.exp(-0.1 * n)])                            # geometric: settles
+    exact = [float(mpmath.zeta(3)),
+             float(mpmath.zeta(3) - mpmath.altzeta(4)),
+             float(1.0 / mpmath.expm1(0.1))]
+    tol = np.full(3, 1e-11)
+    for count in (256, 1024, 2048):
+        values, accepted, growth = plate.settle_flow_series(rows[:, :count], tol, last=False)
+        if accepted.all():
+            break
+    assert accepted.all()
+    assert count <= 1024
+    # independent implementation: mpmath zeta, alternating zeta (Dirichlet eta) and expm1
+    np.testing.assert_allclose(values, exact, rtol=0.0, atol=1e-10)
+    # a block that has not settled is not accepted, unless it is the last one
+    _, accepted, _ = plate.settle_flow_series(rows[:1, :64], tol[:1], last=False)
+    assert not accepted[0]
+    values, accepted, _ = plate.settle_flow_series(rows[:1, :64], tol[:1], last=True)
+    assert accepted[0]
+    # the partial sum itself (common practice, no source)
+    np.testing.assert_allclose(values, [np.sum(1.0 / n[:64] ** 3)], rtol=1e-15, atol=0.0)
+
+
+SKEWED_OIL_FILM = PlateProblem(  # a quench tank wall with unequal side temperatures
+    width=0.25, height=0.15, conductivity=25.0, bottom=conv(400.0, 300.0),
+    left=fixed(20.0), right=fixed(120.0), top=fixed(20.0))
+
+
+def test_reported_extremes_are_extreme_and_within_the_error_estimate() -> None:
+    """The hottest point of a convective edge lies between samples (unequal sides): the
+    reported value is at least the largest of a dense sampling of that edge, and no more than
+    the error estimate above the true value there."""
+    r = solve_plate(dataclasses.replace(SKEWED_OIL_FILM,
+                                        limits=Limits(max_surface_temperature=500.0)))
+    assert r.hottest.description == "bottom edge"
+    xs = np.linspace(0.0, 0.25, 1001)
+    dense = temperature_at(dataclasses.replace(SKEWED_OIL_FILM, atol=1e-9), xs, 0.0 * xs)
+    est = r.convergence.error_estimate
+    # the solver's own dense sampling at a much tighter tolerance (consistency, no source)
+    assert r.hottest.temperature >= dense.max() - est - 1e-9
+    at = temperature_at(dataclasses.replace(SKEWED_OIL_FILM, atol=1e-9),
+                        np.array([r.hottest.position[0]]), np.array([0.0]))[0]
+    np.testing.assert_allclose(r.hottest.temperature, at, rtol=0.0, atol=est + 1e-9)
+    surface = r.safety.checks[0]
+    assert surface.limit == "max_surface_temperature"
+    np.testing.assert_allclose(surface.extreme, r.hottest.temperature, rtol=0.0, atol=est)
+
+
+def test_extremes_with_generation_against_mpmath() -> None:
+    # an interior maximum found by sampling and refinement, checked against the independent
+    # high-precision series at the reported position (mpmath, `generation_series`)
+    r = solve_plate(ref.HEATER)
+    x, y = r.hottest.position
+    expected = ref.generation_series(x, y, 0.08, 0.05, 16.0, 2.0e6)
+    np.testing.assert_allclose(r.hottest.temperature, expected, rtol=0.0,
+                               atol=r.convergence.error_estimate)
+    # the heater's peak is its centre by symmetry (common practice, no source)
+    np.testing.assert_allclose(r.hottest.position, (0.04, 0.025), rtol=0.0, atol=1e-6)
