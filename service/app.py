@@ -7,8 +7,9 @@ import logging
 from collections.abc import Mapping
 from typing import Any
 
-from flask import Flask
+from flask import Flask, g
 
+from schemas.budgets import CURRENT_BUDGETS
 from service.config import budgets_from, load_config
 from service.cors import install_cors
 from service.jsonio import OrjsonProvider
@@ -41,6 +42,19 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
         "verification": functools.cache(verification.report),
     }
     register_error_handlers(app)
+
+    @app.before_request
+    def _budgets() -> None:
+        # this app's compute budgets for the schemas, undone when the request ends so that
+        # they never leak into whatever runs next in this thread
+        g.budgets_token = CURRENT_BUDGETS.set(app.extensions["conduction"]["budgets"])
+
+    @app.teardown_request
+    def _budgets_done(exc: BaseException | None) -> None:
+        token = g.pop("budgets_token", None)
+        if token is not None:
+            CURRENT_BUDGETS.reset(token)
+
     install_cors(app, settings["CORS_ORIGINS"])
     # request IDs and JSON logs, API keys, readiness, time budget, metrics (service/ops/)
     install_ops(app)

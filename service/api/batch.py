@@ -16,7 +16,6 @@ from schemas.batch import (
     SweepResponseSchema,
     sweep_cases,
 )
-from schemas.budgets import CURRENT_BUDGETS
 from schemas.fields import Quantity
 from schemas.units import DEFAULT_UNITS
 from service import __version__
@@ -65,7 +64,6 @@ def solve_one(kind: str, payload: Any) -> tuple[int, dict[str, Any] | None,
 @bp.post("/v1/batch")
 def batch() -> Response:
     started = time.perf_counter()
-    CURRENT_BUDGETS.set(current_app.extensions["conduction"]["budgets"])
     request_items = BatchRequestSchema().load(read_json())["items"]
     items = []
     for index, item in enumerate(request_items):
@@ -110,7 +108,6 @@ def _check_paths(base: dict[str, Any], vary: list[dict[str, Any]]) -> None:
 @bp.post("/v1/sweep")
 def sweep() -> Response:
     started = time.perf_counter()
-    CURRENT_BUDGETS.set(current_app.extensions["conduction"]["budgets"])
     fmt = wanted_format(("json", "csv"))
     request = SweepRequestSchema().load(read_json())
     kind = request["kind"]

@@ -16,7 +16,6 @@ import orjson
 from flask import Response, current_app, g, request
 from marshmallow import Schema
 
-from schemas.budgets import CURRENT_BUDGETS
 from schemas.common import ConvergenceSchema, SolveRequest, quantity_kinds
 from schemas.units import CURRENT_OUTPUT_UNITS, DEFAULT_OUTPUT_UNITS, OutputUnits
 from service import __version__
@@ -149,7 +148,6 @@ def dump_with_units(schema: Schema, obj: Any, output_units: OutputUnits) -> Any:
 
 def run_solve(family: Family, payload: Any) -> dict[str, Any]:
     """Validate, solve and envelope one problem; raises on every failure (used by batch too)."""
-    CURRENT_BUDGETS.set(current_app.extensions["conduction"]["budgets"])
     started = time.perf_counter()
     solve_request: SolveRequest = family.request_schema.load(payload)
     solve_started = time.perf_counter()
