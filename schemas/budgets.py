@@ -10,6 +10,8 @@ from __future__ import annotations
 from contextvars import ContextVar
 from dataclasses import dataclass
 
+from service.solvers.errors import TooLargeError
+
 
 @dataclass(frozen=True)
 class Budgets:
@@ -24,4 +26,15 @@ class Budgets:
 
 
 DEFAULT_BUDGETS = Budgets()
+def refuse_profile_points(data: object) -> None:
+    """413 before parsing when a raw request asks for more profile points than allowed."""
+    if not isinstance(data, dict):
+        return
+    limit = CURRENT_BUDGETS.get().max_profile_points
+    points = data.get("profile_points")
+    if isinstance(points, int) and not isinstance(points, bool) and points > limit:
+        raise TooLargeError(f"profile_points: {points} asked, the limit is {limit}",
+                            field="profile_points")
+
+
 CURRENT_BUDGETS: ContextVar[Budgets] = ContextVar("budgets", default=DEFAULT_BUDGETS)  # noqa: B039 - frozen

@@ -14,11 +14,10 @@ from marshmallow import (
     validates_schema,
 )
 
-from schemas.budgets import CURRENT_BUDGETS
+from schemas.budgets import refuse_profile_points
 from schemas.common import BaseSchema, SolveRequestSchema, SolveResponseSchema
 from schemas.fields import Integer, Number, Quantity
 from schemas.layers import AREA, TEMPERATURE
-from service.solvers.errors import TooLargeError
 from service.solvers.fin import SHAPES, FinProblem
 
 #: Tip conditions named by a string; a fixed tip temperature is {"temperature": T}.
@@ -121,13 +120,7 @@ class FinRequestSchema(SolveRequestSchema):
 
     @pre_load
     def _refuse_oversized(self, data: Any, **kwargs: Any) -> Any:
-        if not isinstance(data, dict):
-            return data
-        limit = CURRENT_BUDGETS.get().max_profile_points
-        points = data.get("profile_points")
-        if isinstance(points, int) and not isinstance(points, bool) and points > limit:
-            raise TooLargeError(f"profile_points: {points} asked, the limit is {limit}",
-                                field="profile_points")
+        refuse_profile_points(data)
         return data
 
     @validates_schema

@@ -14,7 +14,7 @@ from marshmallow import (
     validates_schema,
 )
 
-from schemas.budgets import CURRENT_BUDGETS
+from schemas.budgets import CURRENT_BUDGETS, refuse_profile_points
 from schemas.common import BaseSchema, SolveRequestSchema, SolveResponseSchema
 from schemas.fields import Integer, Number, Quantity
 from schemas.polymorphic import Polymorphic
@@ -225,13 +225,10 @@ class LayersRequestSchema(SolveRequestSchema):
     @pre_load
     def _refuse_oversized(self, data: Any, **kwargs: Any) -> Any:
         """Count profile points and layers before parsing (413 before any allocation)."""
+        refuse_profile_points(data)
         if not isinstance(data, dict):
             return data
         limit = CURRENT_BUDGETS.get().max_profile_points
-        points = data.get("profile_points")
-        if isinstance(points, int) and not isinstance(points, bool) and points > limit:
-            raise TooLargeError(f"profile_points: {points} asked, the limit is {limit}",
-                                field="profile_points")
         layers = data.get("layers")
         if isinstance(layers, list) and 2 * len(layers) > limit:
             raise TooLargeError(f"layers: {len(layers)} layers need at least {2 * len(layers)} "

@@ -649,7 +649,7 @@ def one_term(geometry: str, biot: float, fourier: _Array, xi: _Array) -> _Array:
     return (c * np.exp(-np.outer(fourier, mu**2))) @ spatial_modes(geometry, mu, xi)
 
 
-# --------------------------------------------------------------------------- problem set-up
+# --------------------------------------------------------------------------- setting up the problem
 
 
 @dataclass(frozen=True)
