@@ -1290,8 +1290,13 @@ def _tail_core(p: _TailParams, terms: _Array, t: _Array) -> _Array:
             conv_route = body / (p.conductivity * pi * n / L + p.film)
             body = np.where(p.is_d, body, np.where(p.is_n, flux_route,
                                                    np.minimum(flux_route, conv_route)))
-        # F <= 2 (1 + e^{-2 pi (depth - t) / L}) / (1 - e^{-2 N pi depth / L}) (N >= 1)
-        fac = 2.0 * (1.0 + np.exp(-2.0 * pi * (d - t) / L)) / -np.expm1(-2.0 * pi * n * d / L)
+        # F = 2 (1 + e^{-2 N pi (depth - t) / L}) / (1 - e^{-2 N pi depth / L}), the first
+        # exponential as e^{-2 N pi depth / L} / e^2 (no second exponential per entry); where
+        # e^2 underflows, 1 stands in for it (an upper bound: t <= depth)
+        e2 = e * e
+        far = np.exp(-2.0 * pi * n * d / L)
+        ratio = np.where(e2 > 1e-300, far / np.maximum(e2, 1e-300), 1.0)
+        fac = 2.0 * (1.0 + np.minimum(ratio, 1.0)) / -np.expm1(-2.0 * pi * n * d / L)
         return fac * e * body
 
 
@@ -1299,7 +1304,7 @@ def tail_bound(sub: SubProblem, consts: TailConstants, terms: _Array, t: _Array)
     """Bound on |sum_{n > N} c_n X_n R_n(t)|, K, for each N in `terms` and each t.
 
     Tail modes have mu_n >= (n - 1) pi >= N pi. With |X_n| <= 1, |c_n| from `TailConstants` and
-    |R_n(t)| <= F e^{-mu t / L} D(mu), F = (1 + e^{-2 pi (depth - t)/L}) / (1 - e^{-2 N pi
+    |R_n(t)| <= F e^{-mu t / L} D(mu), F = (1 + e^{-2 N pi (depth - t)/L}) / (1 - e^{-2 N pi
     depth / L}), D = 1 (fixed-temperature data), L / (k mu) (flux data), 1 / (k mu / L + h)
     (convection data), the tail is a sum of e^{-m pi tau} / m^p, tau = t / L, bounded by a
     geometric series or the integral test. Returns an array (len(t), len(terms)). The bound does
@@ -2136,6 +2141,14 @@ class PlateSeries:
         accepted."""
         max_terms = self.problem.max_terms
         pending = [(i, n) for i in range(len(self.series)) for n in names]
+        # extrapolate only once mu at N/16 is at least 4 times the largest Biot number of the
+        # series: its convective ends, a convective opposite edge (h L / k) and its own film
+        asymptotic = []
+        for ser in self.series:
+            sub = ser.sub
+            biots = [sub.start[1], sub.end[1], sub.opposite[1] * sub.length,
+                     sub.film * sub.length / sub.conductivity]
+            asymptotic.append(16.0 * 4.0 * max(biots) / math.pi)
         out: dict[tuple[int, str], float] = {}
         count = min(256, max_terms)
         while pending:
@@ -2146,7 +2159,8 @@ class PlateSeries:
             tols = [tol / (1.0 if kind == "D" else self.cond[n].film) for _, n, kind in rows]
             values, done, growth = settle_flow_series(
                 _stack_flow_terms(stack, [self.series[i].sub for i in subset], rows),
-                np.array(tols), last=count >= max_terms)
+                np.array(tols), last=count >= max_terms,
+                asymptotic=np.array([asymptotic[subset[j]] for j, _, _ in rows]))
             for key, v, ok in zip(pending, values, done, strict=True):
                 if ok:
                     out[key] = float(v)
@@ -2192,8 +2206,8 @@ def _richardson(s: _Array, p: _Array) -> _Array:
     return s[:, 0]
 
 
-def settle_flow_series(terms: _Array, tol: _Array,
-                       last: bool) -> tuple[_Array, _Array, _Array]:
+def settle_flow_series(terms: _Array, tol: _Array, last: bool,
+                       asymptotic: _Array | None = None) -> tuple[_Array, _Array, _Array]:
     """Sum each row of `terms` (R, N) if it has settled: (values, accepted, growth).
 
     A row is accepted when its partial sums over the last half of the block vary by <= tol
@@ -2203,6 +2217,9 @@ def settle_flow_series(terms: _Array, tol: _Array,
     N/2, agree to tol (the one up to N is returned). With `last` every row is accepted with its
     partial sum. `growth` suggests the next block: 2N where the tail is steady and the two
     extrapolations differ by at most 2^(p+2) tol (their difference falls like N^-(p+3)), else 4N.
+    `asymptotic` (per row) is the least N at which extrapolation may be trusted: terms take
+    their asymptotic form only once the eigenvalues are well past every Biot number of the
+    sub-problem, and before that a steady-looking tail can change its law.
     """
     n = terms.shape[1]
     parts = np.cumsum(terms, axis=1)
@@ -2221,6 +2238,8 @@ def settle_flow_series(terms: _Array, tol: _Array,
                       & (np.abs(rate[:, -1] - p) < 0.1) & (np.abs(rate[:, -2] - p) < 0.2))
             both = _richardson(np.concatenate((s[:, 2:], s[:, 1:5])), np.concatenate((p, p)))
             upper, lower = both[:p.size], both[p.size:]
+            if asymptotic is not None:
+                steady &= n >= asymptotic
             rich = ~ok & steady & (np.abs(upper - lower) <= tol)
             growth = np.where(steady & (np.abs(upper - lower) <= tol * 2.0 ** (p + 2)), 2, 4)
         values = np.where(rich, upper, values)
@@ -2365,70 +2384,118 @@ class _Found(NamedTuple):
     terms: int
 
 
-def _refine(model: PlateSeries, seeds: list[_Seed]) -> list[_Found]:
-    """Local refinement of extremes near samples, all seeds in one evaluation.
+#: Most evaluated rounds of the local refinement of extremes after the first (the stencil
+#: shrinks 4 times per round).
+_REFINE_ROUNDS = 5
 
-    Each seed's box (+-hx, +-hy inside the plate, stopping half way to a fixed-temperature
-    edge, where that edge's series has no finite count) gets, per series, the term count of the
-    truncation rule at the box's smallest distance from that series' data edge; the tail bound
-    does not increase with that distance, so the count and its bound hold anywhere in the box.
-    A Newton step on the quadratic model of the sample stencil (parabolic vertex along an edge,
-    2 x 2 Hessian inside; only where the model is concave, and limited to the stencil) gives a
-    centre; the seed and a stencil 4 times smaller around that centre are evaluated with the
-    box counts, and the best point is returned with the box bound (K, summed over the series).
-    With samples h apart the vertex is within O(h^2) of a smooth extreme, so the value missed
-    is O(h^4) and the smaller stencil makes up for a poor model.
+
+def _refine(model: PlateSeries, seeds: list[_Seed]) -> list[_Found]:
+    """Local refinement of extremes near samples, all seeds in each evaluation.
+
+    Every point is evaluated with its own term count and tail bound (truncation rule), so the
+    search may go anywhere in the seed's neighbourhood (+-hx, +-hy inside the plate): points on
+    fixed-temperature edges return their data. First round: the seed, the vertex of the sample
+    stencil's quadratic model and a sub-grid of the neighbourhood (9 points along an edge, 5 x 5
+    inside), so that a peak narrower than the sample spacing is not lost. Then rounds of a
+    3-point (3 x 3) stencil around the best point so far and a Newton step on its quadratic
+    model (parabolic vertex, or the 2 x 2 Hessian; only where the model is concave, limited to
+    the stencil), shrinking 4 times per round, until the model promises a gain below 1e-3 atol
+    (one round for a smooth extreme; at most `_REFINE_ROUNDS`). Returns the best point met
+    with its bound (K) and terms.
     """
     p = model.problem
     w, h = p.width, p.height
     k = len(seeds)
     if not k:
         return []
-    fixed = {n for n in EDGE_NAMES if model.cond[n].kind == "D"}
-    lo = np.array([[max(0.5 * s.x if "left" in fixed else 0.0, s.x - s.hx),
-                    max(0.5 * s.y if "bottom" in fixed else 0.0, s.y - s.hy)] for s in seeds])
-    hi = np.array([[min(0.5 * (s.x + w) if "right" in fixed else w, s.x + s.hx),
-                    min(0.5 * (s.y + h) if "top" in fixed else h, s.y + s.hy)] for s in seeds])
-    nser = len(model.series)
-    if nser:
-        cx = np.stack([lo[:, 0], hi[:, 0], lo[:, 0], hi[:, 0]], axis=1).ravel()
-        cy = np.stack([lo[:, 1], lo[:, 1], hi[:, 1], hi[:, 1]], axis=1).ravel()
-        _, t = model._local(cx, cy)
-        box_terms, box_bound = model.choose(t.reshape(nser, k, 4).min(axis=2))
-    else:
-        box_terms, box_bound = np.zeros((0, k), int), np.zeros((0, k))
-    xs, ys = [], []
-    offsets = np.array([-0.25, 0.0, 0.25])
+    lo = np.array([[max(0.0, s.x - s.hx), max(0.0, s.y - s.hy)] for s in seeds])
+    hi = np.array([[min(w, s.x + s.hx), min(h, s.y + s.hy)] for s in seeds])
+    best: list[_Found | None] = [None] * k
+    gain_tol = 1e-3 * model.atol
+
+    def evaluate(points: dict[int, tuple[_Array, _Array]]) -> dict[int, _Array]:
+        order = list(points)
+        sizes = [points[i][0].size for i in order]
+        x_all = np.concatenate([points[i][0] for i in order])
+        y_all = np.concatenate([points[i][1] for i in order])
+        temp, err, terms = model._evaluate(x_all, y_all, None)
+        most = terms.max(axis=0, initial=0) if terms.size else np.zeros(x_all.size, int)
+        out: dict[int, _Array] = {}
+        start = 0
+        for i, size in zip(order, sizes, strict=True):
+            sl = slice(start, start + size)
+            j = start + int(np.argmax(seeds[i].sign * temp[sl]))
+            prev = best[i]
+            if prev is None or seeds[i].sign * temp[j] > seeds[i].sign * prev.temperature:
+                best[i] = _Found(float(temp[j]), float(x_all[j]), float(y_all[j]),
+                                 float(err[j]), int(most[j]))
+            out[i] = temp[sl]
+            start += size
+        return out
+
+    # first round: seed, sample-stencil vertex, sub-grid of the neighbourhood
+    points: dict[int, tuple[_Array, _Array]] = {}
+    step = np.zeros((k, 2))
     for i, s in enumerate(seeds):
-        c = np.array([s.x, s.y])
+        xs, ys = [np.array([s.x])], [np.array([s.y])]
         if s.stencil is not None:
-            c = np.clip(_newton_step(s.sign * np.ravel(s.stencil), s.hx, s.hy, c, (s.x, s.y)),
-                        lo[i], hi[i])
-        gx = np.clip(c[0] + offsets * s.hx, lo[i, 0], hi[i, 0]) if s.hx > 0.0 else c[:1]
-        gy = np.clip(c[1] + offsets * s.hy, lo[i, 1], hi[i, 1]) if s.hy > 0.0 else c[1:]
-        xs.append(np.concatenate(([s.x], np.tile(gx, gy.size))))
-        ys.append(np.concatenate(([s.y], np.repeat(gy, gx.size))))
-    sizes = [len(v) for v in xs]
-    x_all, y_all = np.concatenate(xs), np.concatenate(ys)
-    temp, _, _ = model._evaluate(x_all, y_all, box_terms[:, np.repeat(np.arange(k), sizes)])
-    on = model._fixed_edges(x_all, y_all)[0]
-    bound = box_bound.sum(axis=0) + model.skipped
-    terms = box_terms.max(axis=0, initial=0)
-    out = []
-    start = 0
-    for i, s in enumerate(seeds):
-        j = start + int(np.argmax(s.sign * temp[start:start + sizes[i]]))
-        out.append(_Found(float(temp[j]), float(x_all[j]), float(y_all[j]),
-                          0.0 if on[j] else float(bound[i]), 0 if on[j] else int(terms[i])))
-        start += sizes[i]
-    return out
+            v = np.clip(_newton_step(s.sign * np.ravel(s.stencil), s.hx, s.hy,
+                                     np.array([s.x, s.y]), (s.x, s.y))[0], lo[i], hi[i])
+            xs.append(v[:1])
+            ys.append(v[1:])
+            size = 9 if (s.hx > 0.0) != (s.hy > 0.0) else 5
+            gx = np.linspace(lo[i, 0], hi[i, 0], size) if s.hx > 0.0 else np.array([s.x])
+            gy = np.linspace(lo[i, 1], hi[i, 1], size) if s.hy > 0.0 else np.array([s.y])
+            xs.append(np.tile(gx, gy.size))
+            ys.append(np.repeat(gy, gx.size))
+            step[i] = (2.0 * s.hx / (size - 1), 2.0 * s.hy / (size - 1))
+        points[i] = (np.concatenate(xs), np.concatenate(ys))
+    evaluate(points)
+    active = [i for i, s in enumerate(seeds) if s.stencil is not None]
+    centre = np.array([[b.x, b.y] if b is not None else [s.x, s.y]
+                       for b, s in zip(best, seeds, strict=True)])
+    offsets = np.array([-1.0, 0.0, 1.0])
+    last: dict[int, tuple[_Array, _Array]] = {}
+    for _ in range(_REFINE_ROUNDS):
+        if not active:
+            break
+        points, stencils = {}, {}
+        for i in active:
+            # symmetric inside the neighbourhood: an axis at its side does not move this round
+            dx = min(step[i, 0], centre[i, 0] - lo[i, 0], hi[i, 0] - centre[i, 0])
+            dy = min(step[i, 1], centre[i, 1] - lo[i, 1], hi[i, 1] - centre[i, 1])
+            gx = centre[i, 0] + offsets * dx if dx > 0.0 else centre[i, :1]
+            gy = centre[i, 1] + offsets * dy if dy > 0.0 else centre[i, 1:]
+            stencils[i] = (dx, dy)
+            points[i] = (np.tile(gx, gy.size), np.repeat(gy, gx.size))
+        values = evaluate(points)
+        still = []
+        for i in active:
+            dx, dy = stencils[i]
+            met = best[i]
+            fallback = (met.x, met.y) if met is not None else (centre[i, 0], centre[i, 1])
+            centre[i], gain = _newton_step(seeds[i].sign * values[i], dx, dy, centre[i], fallback)
+            step[i] /= 4.0
+            if gain > gain_tol and max(dx, dy) > 1e-9 * max(w, h):
+                still.append(i)
+            else:  # converged: the vertex itself is the last point to try
+                last[i] = (centre[i, :1].copy(), centre[i, 1:].copy())
+        active = still
+    for i in active:
+        last[i] = (centre[i, :1].copy(), centre[i, 1:].copy())
+    if last:
+        evaluate(last)
+    found = [b for b in best if b is not None]
+    assert len(found) == k  # every seed was evaluated in the first round
+    return found
 
 
 def _newton_step(f: _Array, dx: float, dy: float, centre: _Array,
-                 fallback: tuple[float, float]) -> _Array:
+                 fallback: tuple[float, float]) -> tuple[_Array, float]:
     """Next centre from a stencil of sign * T (to be maximised; 3 x 3 with rows in y, or 3
-    along the moving axis): the vertex of its quadratic model when that model is concave,
-    limited to the stencil, else `fallback`."""
+    along the moving axis) and the gain its quadratic model promises there: the vertex of the
+    model when it is concave, limited to the stencil, else `fallback` (gain inf)."""
+    back = np.array(fallback, float), math.inf
     if dx > 0.0 and dy > 0.0:
         g = np.reshape(f, (3, 3))
         gx = (g[1, 2] - g[1, 0]) / (2.0 * dx)
@@ -2438,19 +2505,24 @@ def _newton_step(f: _Array, dx: float, dy: float, centre: _Array,
         hxy = (g[2, 2] - g[2, 0] - g[0, 2] + g[0, 0]) / (4.0 * dx * dy)
         det = hxx * hyy - hxy * hxy
         if not (hxx < 0.0 and det > 0.0):
-            return np.array(fallback, float)
-        move = -np.array([hyy * gx - hxy * gy, hxx * gy - hxy * gx]) / det
+            return back
+        move = np.clip(-np.array([hyy * gx - hxy * gy, hxx * gy - hxy * gx]) / det,
+                       [-dx, -dy], [dx, dy])
+        gain = gx * move[0] + gy * move[1] + 0.5 * (hxx * move[0] ** 2 + 2.0 * hxy * move[0]
+                                                    * move[1] + hyy * move[1] ** 2)
     elif dx > 0.0 or dy > 0.0:
-        curv = f[0] - 2.0 * f[1] + f[2]
+        d = dx if dx > 0.0 else dy
+        slope, curv = (f[2] - f[0]) / (2.0 * d), (f[0] - 2.0 * f[1] + f[2]) / (d * d)
         if not curv < 0.0:
-            return np.array(fallback, float)
-        v = 0.5 * (dx if dx > 0.0 else dy) * (f[0] - f[2]) / curv
+            return back
+        v = float(np.clip(-slope / curv, -d, d))
+        gain = slope * v + 0.5 * curv * v * v
         move = np.array([v, 0.0]) if dx > 0.0 else np.array([0.0, v])
     else:
-        return np.array(fallback, float)
-    if not np.all(np.isfinite(move)):
-        return np.array(fallback, float)
-    return centre + np.clip(move, [-dx, -dy], [dx, dy])
+        return back
+    if not (np.all(np.isfinite(move)) and math.isfinite(gain)):
+        return back
+    return centre + move, float(gain)
 
 
 class _Extremes(NamedTuple):
@@ -2474,7 +2546,8 @@ def _find_extremes(model: PlateSeries, sets: list[_Samples],
     seeds: list[_Seed] = []
     for sign in (1.0, -1.0):
         if sets:
-            best = max(sets, key=lambda s: sign * float(np.max(sign * s.temp)))
+            # the set holding the most extreme sample: largest max of sign * T
+            best = max(sets, key=lambda s: float(np.max(sign * s.temp)))
             seeds.append(_seed(model, best, sign))
     nbody = len(seeds)
     exposed = [n for n in EDGE_NAMES if model.cond[n].kind == "R"] if surfaces else []

@@ -691,3 +691,33 @@ def test_extremes_with_generation_against_mpmath() -> None:
                                atol=r.convergence.error_estimate)
     # the heater's peak is its centre by symmetry (common practice, no source)
     np.testing.assert_allclose(r.hottest.position, (0.04, 0.025), rtol=0.0, atol=1e-6)
+
+
+COLD_CAP_FIN = PlateProblem(  # a tall cooling-fin web: insulated sides, a cold cap, a fan face
+    width=0.23, height=2.6, conductivity=41.0, bottom=INSULATED, left=INSULATED,
+    right=conv(257.0, 70.35), top=Edge("flux", value=-36.0))
+GAS_TILE = PlateProblem(  # a thin refractory tile over a hot gas stream, held at both ends
+    width=0.26, height=0.0117, conductivity=1.67, bottom=conv(6684.0, 299.7),
+    right=Edge("flux", value=-206.0), top=fixed(236.7), left=fixed(292.8))
+
+
+@pytest.mark.parametrize("problem", [SKEWED_OIL_FILM, COLD_CAP_FIN, GAS_TILE],
+                         ids=["skewed-oil-film", "cold-cap-fin", "gas-tile"])
+def test_reported_extremes_bound_a_dense_boundary_sampling(problem: PlateProblem) -> None:
+    """Without generation the extremes lie on the boundary: the reported hottest (coldest) is at
+    least as hot (cold) as every point of a dense sampling of the four edges, up to the error
+    estimates. The fin's coldest point is a corner of another sample line than its hottest; the
+    tile's hottest is a peak narrower than the sample spacing, next to a fixed corner."""
+    r = solve_plate(problem)
+    w, h = problem.width, problem.height
+    s = np.linspace(0.0, 1.0, 801)
+    xs = np.concatenate((s * w, np.full(s.size, w), s * w, np.zeros(s.size)))
+    ys = np.concatenate((np.zeros(s.size), s * h, np.full(s.size, h), s * h))
+    tight = dataclasses.replace(problem, atol=1e-3 * r.convergence.atol)
+    dense = temperature_at(tight, xs, ys)
+    slack = r.convergence.error_estimate + tight.atol
+    # the solver's own dense sampling at a tighter tolerance (consistency, no source)
+    np.testing.assert_allclose(max(r.hottest.temperature, dense.max()), r.hottest.temperature,
+                               rtol=0.0, atol=slack)
+    np.testing.assert_allclose(min(r.coldest.temperature, dense.min()), r.coldest.temperature,
+                               rtol=0.0, atol=slack)
