@@ -172,9 +172,10 @@ class PlateResult:
     hottest, coldest : Location
         Extremes over the body, degC and m.
     convergence : Convergence
-        ``converged`` or ``max_terms`` (or ``non_finite``); `terms` is the largest count used at
-        any point by any sub-problem, `error_estimate` the largest tail bound over the reported
-        points (K).
+        ``converged`` or ``max_terms`` (or ``non_finite``); `terms` is the largest count used
+        by any sub-problem for a reported temperature, `error_estimate` the largest tail bound
+        over the reported temperatures (K): points, grid, hottest and coldest (and the exposed
+        edges' extremes when a surface limit is checked).
     safety : SafetyReport
     warnings : tuple of str
     """
@@ -1834,7 +1835,9 @@ class PlateSeries:
     """A solved plate: base (T_p + Pi) plus one series per edge with data.
 
     `temperature(x, y)` evaluates anywhere with terms chosen per point; `grid(x, y)` evaluates on
-    a tensor grid with terms chosen per row. Both return (temperature, error bound, terms).
+    a tensor grid with terms chosen per row (`_choose_rows`). Both return (temperature, error
+    bound, terms). Mode tables are built on demand for all series at once (`stack_modes`) and
+    kept for the solve.
     """
 
     def __init__(self, problem: PlateProblem) -> None:
