@@ -172,9 +172,10 @@ class PlateResult:
     hottest, coldest : Location
         Extremes over the body, degC and m.
     convergence : Convergence
-        ``converged`` or ``max_terms`` (or ``non_finite``); `terms` is the largest count used at
-        any point by any sub-problem, `error_estimate` the largest tail bound over the reported
-        points (K).
+        ``converged`` or ``max_terms`` (or ``non_finite``); `terms` is the largest count used
+        by any sub-problem for a reported temperature, `error_estimate` the largest tail bound
+        over the reported temperatures (K): points, grid, hottest and coldest (and the exposed
+        edges' extremes when a surface limit is checked).
     safety : SafetyReport
     warnings : tuple of str
     """
@@ -1834,7 +1835,9 @@ class PlateSeries:
     """A solved plate: base (T_p + Pi) plus one series per edge with data.
 
     `temperature(x, y)` evaluates anywhere with terms chosen per point; `grid(x, y)` evaluates on
-    a tensor grid with terms chosen per row. Both return (temperature, error bound, terms).
+    a tensor grid with terms chosen per row (`_choose_rows`). Both return (temperature, error
+    bound, terms). Mode tables are built on demand for all series at once (`stack_modes`) and
+    kept for the solve.
     """
 
     def __init__(self, problem: PlateProblem) -> None:
@@ -2399,9 +2402,10 @@ def _refine(model: PlateSeries, seeds: list[_Seed]) -> list[_Found]:
     inside), so that a peak narrower than the sample spacing is not lost. Then rounds of a
     3-point (3 x 3) stencil around the best point so far and a Newton step on its quadratic
     model (parabolic vertex, or the 2 x 2 Hessian; only where the model is concave, limited to
-    the stencil), shrinking 4 times per round, until the model promises a gain below 1e-3 atol
-    (one round for a smooth extreme; at most `_REFINE_ROUNDS`). Returns the best point met
-    with its bound (K) and terms.
+    the stencil), shrinking 4 times per round, until the model promises a gain below 1e-2 atol
+    (the best point met is then that close to the model's peak; one round for a smooth
+    extreme, at most `_REFINE_ROUNDS`). The first such step is taken from the sub-grid itself.
+    Returns the best point met with its bound (K) and terms.
     """
     p = model.problem
     w, h = p.width, p.height
@@ -2411,7 +2415,7 @@ def _refine(model: PlateSeries, seeds: list[_Seed]) -> list[_Found]:
     lo = np.array([[max(0.0, s.x - s.hx), max(0.0, s.y - s.hy)] for s in seeds])
     hi = np.array([[min(w, s.x + s.hx), min(h, s.y + s.hy)] for s in seeds])
     best: list[_Found | None] = [None] * k
-    gain_tol = 1e-3 * model.atol
+    gain_tol = 1e-2 * model.atol
 
     def evaluate(points: dict[int, tuple[_Array, _Array]]) -> dict[int, _Array]:
         order = list(points)
@@ -2436,6 +2440,7 @@ def _refine(model: PlateSeries, seeds: list[_Seed]) -> list[_Found]:
     # first round: seed, sample-stencil vertex, sub-grid of the neighbourhood
     points: dict[int, tuple[_Array, _Array]] = {}
     step = np.zeros((k, 2))
+    grids: dict[int, tuple[int, int, int]] = {}  # sub-grid: offset in the points, nx, ny
     for i, s in enumerate(seeds):
         xs, ys = [np.array([s.x])], [np.array([s.y])]
         if s.stencil is not None:
@@ -2448,14 +2453,28 @@ def _refine(model: PlateSeries, seeds: list[_Seed]) -> list[_Found]:
             gy = np.linspace(lo[i, 1], hi[i, 1], size) if s.hy > 0.0 else np.array([s.y])
             xs.append(np.tile(gx, gy.size))
             ys.append(np.repeat(gy, gx.size))
-            step[i] = (2.0 * s.hx / (size - 1), 2.0 * s.hy / (size - 1))
+            step[i] = ((hi[i, 0] - lo[i, 0]) / (size - 1), (hi[i, 1] - lo[i, 1]) / (size - 1))
+            grids[i] = (2, gx.size, gy.size)
         points[i] = (np.concatenate(xs), np.concatenate(ys))
-    evaluate(points)
+    first = evaluate(points)
     active = [i for i, s in enumerate(seeds) if s.stencil is not None]
     centre = np.array([[b.x, b.y] if b is not None else [s.x, s.y]
                        for b, s in zip(best, seeds, strict=True)])
     offsets = np.array([-1.0, 0.0, 1.0])
     last: dict[int, tuple[_Array, _Array]] = {}
+    # the sub-grid is a stencil already: a Newton step from around its best point
+    for i in active:
+        start, nx, ny = grids[i]
+        vals = seeds[i].sign * first[i][start:].reshape(ny, nx)
+        jy, jx = np.unravel_index(int(np.argmax(vals)), vals.shape)
+        if (nx == 1 or 0 < jx < nx - 1) and (ny == 1 or 0 < jy < ny - 1):
+            block = vals[max(jy - 1, 0):jy + 2, max(jx - 1, 0):jx + 2]
+            gx = points[i][0][start + jx]
+            gy = points[i][1][start + jy * nx]
+            centre[i] = np.clip(_newton_step(block.ravel(), step[i, 0] if nx > 1 else 0.0,
+                                             step[i, 1] if ny > 1 else 0.0,
+                                             np.array([gx, gy]), (gx, gy))[0], lo[i], hi[i])
+            step[i] /= 4.0
     for _ in range(_REFINE_ROUNDS):
         if not active:
             break
@@ -2478,8 +2497,8 @@ def _refine(model: PlateSeries, seeds: list[_Seed]) -> list[_Found]:
             step[i] /= 4.0
             if gain > gain_tol and max(dx, dy) > 1e-9 * max(w, h):
                 still.append(i)
-            else:  # converged: the vertex itself is the last point to try
-                last[i] = (centre[i, :1].copy(), centre[i, 1:].copy())
+            # else converged: the best point met is within the promised gain (<= gain_tol) of
+            # the model's vertex, which is not evaluated
         active = still
     for i in active:
         last[i] = (centre[i, :1].copy(), centre[i, 1:].copy())
