@@ -20,6 +20,14 @@ class BaseSchema(Schema):
         ordered = True
 
 
+def unused_size_errors(data: dict[str, Any], candidates: tuple[str, ...],
+                       chosen: tuple[str, ...], what: str) -> dict[str, list[str]]:
+    """Errors for size fields the chosen shape or geometry does not use (a misplaced size is
+    rejected rather than silently ignored). `what` reads e.g. "shape 'slab'"."""
+    return {name: [f"Not used by {what}; it takes {', '.join(chosen) or 'no size'}."]
+            for name in candidates if name not in chosen and data.get(name) is not None}
+
+
 class LimitsSchema(BaseSchema):
     max_temperature = Quantity("temperature", metadata={
         "description": "Highest temperature allowed anywhere in the body."})

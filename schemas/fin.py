@@ -15,7 +15,12 @@ from marshmallow import (
 )
 
 from schemas.budgets import refuse_profile_points
-from schemas.common import BaseSchema, SolveRequestSchema, SolveResponseSchema
+from schemas.common import (
+    BaseSchema,
+    SolveRequestSchema,
+    SolveResponseSchema,
+    unused_size_errors,
+)
 from schemas.fields import Integer, Number, Quantity
 from schemas.layers import AREA, TEMPERATURE
 from service.solvers.fin import SHAPES, FinProblem
@@ -138,10 +143,8 @@ class FinRequestSchema(SolveRequestSchema):
                 errors[name] = [f"Required for shape {shape!r}"
                                 + (" unless the tip is infinite." if name == EXTENT_FIELD[shape]
                                    else ".")]
-        for name in SIZE_FIELDS:
-            if name not in SHAPE_FIELDS[shape] and data.get(name) is not None:
-                errors[name] = [f"Not used by shape {shape!r}; it takes "
-                                f"{', '.join(SHAPE_FIELDS[shape])}."]
+        errors.update(unused_size_errors(data, SIZE_FIELDS, SHAPE_FIELDS[shape],
+                                         f"shape {shape!r}"))
         inner, outer = data.get("inner_radius"), data.get("outer_radius")
         if shape == "annular" and inner is not None and outer is not None and outer <= inner:
             errors["outer_radius"] = ["Must exceed inner_radius."]

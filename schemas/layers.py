@@ -15,7 +15,12 @@ from marshmallow import (
 )
 
 from schemas.budgets import CURRENT_BUDGETS, refuse_profile_points
-from schemas.common import BaseSchema, SolveRequestSchema, SolveResponseSchema
+from schemas.common import (
+    BaseSchema,
+    SolveRequestSchema,
+    SolveResponseSchema,
+    unused_size_errors,
+)
 from schemas.fields import Integer, Number, Quantity
 from schemas.polymorphic import Polymorphic
 from service.solvers.air import CYLINDER_ORIENTATIONS, PLANE_ORIENTATIONS, TABLE_RANGE
@@ -244,10 +249,8 @@ class LayersRequestSchema(SolveRequestSchema):
         needed = GEOMETRY_FIELDS[geometry]
         if geometry != "plane" and data.get("inner_radius") is None:
             errors["inner_radius"] = [f"Required for geometry {geometry!r}."]
-        for name in ("inner_radius", "length", "area"):
-            if name not in needed and data.get(name) is not None:
-                errors[name] = [f"Not used by geometry {geometry!r}; it takes "
-                                f"{', '.join(needed)}."]
+        errors.update(unused_size_errors(data, ("inner_radius", "length", "area"), needed,
+                                         f"geometry {geometry!r}"))
         layers = data.get("layers") or []
         contacts = data.get("contact_resistances") or []
         if contacts and len(contacts) != len(layers) - 1:

@@ -15,7 +15,12 @@ from marshmallow import (
 )
 
 from schemas.budgets import CURRENT_BUDGETS
-from schemas.common import BaseSchema, SolveRequestSchema, SolveResponseSchema
+from schemas.common import (
+    BaseSchema,
+    SolveRequestSchema,
+    SolveResponseSchema,
+    unused_size_errors,
+)
 from schemas.fields import Array, Number, Quantity
 from schemas.polymorphic import Polymorphic
 from service.solvers.errors import TooLargeError
@@ -144,10 +149,7 @@ class TransientRequestSchema(SolveRequestSchema):
         for name in needed:
             if data.get(name) is None:
                 errors[name] = [f"Required for shape {shape!r}."]
-        for name in GEOMETRY_FIELDS:
-            if name not in needed and data.get(name) is not None:
-                errors[name] = [f"Not used by shape {shape!r}; it needs "
-                                f"{', '.join(needed) or 'no size'}."]
+        errors.update(unused_size_errors(data, GEOMETRY_FIELDS, needed, f"shape {shape!r}"))
         widths = data.get("half_widths")
         if widths is not None and shape in ("bar", "box") and len(widths) != DIMENSIONS[shape]:
             errors["half_widths"] = [f"Shape {shape!r} takes {DIMENSIONS[shape]} half-widths."]
