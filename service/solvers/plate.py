@@ -30,7 +30,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable, Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from functools import lru_cache
 from types import MappingProxyType
 from typing import NamedTuple
@@ -2552,14 +2552,20 @@ class _Extremes(NamedTuple):
     most: int
 
 
-def _find_extremes(model: PlateSeries, sets: list[_Samples],
-                   reported: list[tuple[_Array, _Array, _Array]], surfaces: bool) -> _Extremes:
-    """Hottest and coldest over the plate, and per convection edge when `surfaces`.
+class _Candidates(NamedTuple):
+    """Refined extremes of a set of samples, before the reported values join them."""
 
-    Candidates: the best samples refined locally (`_refine`), every reported value (points and
-    grid: already counted in the error estimate) and the exact fixed-temperature data (which
-    win ties). `error` and `most` cover the refined values that are reported.
-    """
+    found: list[_Found]   # refined body seeds (hottest, coldest), then two per exposed edge
+    nbody: int            # how many of `found` are body seeds
+    signs: list[float]    # the sign of each body seed
+    exposed: list[str]    # convection edges with their own scope
+    data: list[_Found]    # exact fixed-temperature data
+
+
+def _refined_candidates(model: PlateSeries, sets: list[_Samples],
+                        surfaces: bool) -> _Candidates:
+    """The best samples refined locally (`_refine`), for the body and, when `surfaces`, per
+    convection edge; and the exact fixed-temperature data."""
     p = model.problem
     w, h = p.width, p.height
     seeds: list[_Seed] = []
@@ -2580,6 +2586,20 @@ def _find_extremes(model: PlateSeries, sets: list[_Samples],
         seeds += [_seed(model, line, sign) for sign in (1.0, -1.0)]
     found = _refine(model, seeds)
     data = [_Found(t, x, y, 0.0, 0) for t, x, y in _boundary_candidates(model)]
+    return _Candidates(found, nbody, [s.sign for s in seeds[:nbody]], exposed, data)
+
+
+def _pick_extremes(model: PlateSeries, cands: _Candidates,
+                   reported: list[tuple[_Array, _Array, _Array]]) -> _Extremes:
+    """Hottest and coldest over the plate, and per convection edge in `cands.exposed`.
+
+    Candidates: the refined samples, every reported value (points and grid: already counted
+    in the error estimate) and the exact fixed-temperature data (which win ties). `error` and
+    `most` cover the refined values that are reported.
+    """
+    p = model.problem
+    w, h = p.width, p.height
+    found, nbody = cands.found, cands.nbody
     values = []
     for xs_r, ys_r, ts_r in reported:
         for sign in (1.0, -1.0):
@@ -2588,8 +2608,8 @@ def _find_extremes(model: PlateSeries, sets: list[_Samples],
                 values.append(_Found(float(ts_r[i]), float(xs_r[i]), float(ys_r[i]), 0.0, 0))
     chosen: list[_Found] = []
 
-    def pick(sign: float, cands: list[_Found], exact: list[_Found]) -> Location:
-        best = max(cands, key=lambda c: sign * c.temperature) if cands else None
+    def pick(sign: float, options: list[_Found], exact: list[_Found]) -> Location:
+        best = max(options, key=lambda c: sign * c.temperature) if options else None
         for cand in exact:
             if best is None or sign * cand.temperature >= sign * best.temperature:
                 best = cand  # exact data wins ties
@@ -2597,14 +2617,93 @@ def _find_extremes(model: PlateSeries, sets: list[_Samples],
         chosen.append(best)
         return Location(best.temperature, describe(best.x, best.y, w, h), (best.x, best.y))
 
-    body = list(zip(found[:nbody], seeds[:nbody], strict=True))
-    hottest = pick(1.0, [f for f, s in body if s.sign > 0] + values, data)
-    coldest = pick(-1.0, [f for f, s in body if s.sign < 0] + values, data)
+    body = list(zip(found[:nbody], cands.signs, strict=True))
+    hottest = pick(1.0, [f for f, s in body if s > 0] + values, cands.data)
+    coldest = pick(-1.0, [f for f, s in body if s < 0] + values, cands.data)
     scopes = [Scope(f"{name} edge", pick(1.0, [found[nbody + 2 * i]], []),
                     pick(-1.0, [found[nbody + 2 * i + 1]], []))
-              for i, name in enumerate(exposed)]
+              for i, name in enumerate(cands.exposed)]
     return _Extremes(hottest, coldest, scopes, max([c.bound for c in chosen] + [0.0]),
                      max([c.terms for c in chosen] + [0]))
+
+
+def _find_extremes(model: PlateSeries, sets: list[_Samples],
+                   reported: list[tuple[_Array, _Array, _Array]], surfaces: bool) -> _Extremes:
+    """Hottest and coldest over the plate, and per convection edge when `surfaces`: the best
+    samples refined locally, every reported value and the exact fixed-temperature data."""
+    return _pick_extremes(model, _refined_candidates(model, sets, surfaces), reported)
+
+
+#: Plate definitions whose series model, edge flows and refined extremes are kept per process
+#: (`plate_core`). A light request (a few points) then costs little more than evaluating its
+#: points when the same plate is asked again, as a spreadsheet does with one cell per point.
+#: Each entry holds its mode tables: about 0.1-2 MB (more with many terms near a singular
+#: corner), so the cache stays below about 64 MB.
+CORE_CACHE_SIZE = 32
+
+
+def definition_of(problem: PlateProblem) -> PlateProblem:
+    """The part of a problem that fixes its solution: without the output points, grid and
+    limits (the limits' values; whether convection edges get their own scope is asked of
+    `PlateCore.candidates`)."""
+    return replace(problem, points=(), grid=None, limits=Limits())
+
+
+class PlateCore:
+    """What a series solve computes before it looks at the output points: the model, the edge
+    heat flows, and the samples and refined candidates for the extremes.
+
+    Built once per plate definition and kept by `plate_core`. The model's mode tables grow as
+    requests need more terms (bounded by max_terms); results do not depend on that history,
+    because each evaluation sums exactly the terms its truncation rule chooses. Not meant for
+    concurrent use from several threads (the service's sync workers serve one request at a time).
+    """
+
+    def __init__(self, definition: PlateProblem) -> None:
+        self.model = PlateSeries(definition)
+        # flows first: their mode tables (256 terms of every series, more for slow ones) then
+        # serve the evaluations
+        self.flows = self.model.edge_heat_flows()
+        self._samples: list[_Samples] | None = None
+        self._candidates: dict[bool, _Candidates] = {}
+
+    def samples(self) -> list[_Samples]:
+        """Where the extremes can lie when no fine output grid is asked: the flux and
+        convection edges without generation (`_sample_lines`), else a square sample grid."""
+        if self._samples is None:
+            model = self.model
+            p = model.problem
+            if p.generation == 0.0:
+                lines = _sample_lines(model)
+                xs = [np.tile(gx, gy.size) for gx, gy in lines]
+                ys = [np.repeat(gy, gx.size) for gx, gy in lines]
+                temp = (model._evaluate(np.concatenate(xs), np.concatenate(ys), None)[0]
+                        if lines else np.zeros(0))
+                self._samples, start = [], 0
+                for gx, gy in lines:
+                    size = gx.size * gy.size
+                    self._samples.append(
+                        _Samples(gx, gy, temp[start:start + size].reshape(gy.size, gx.size)))
+                    start += size
+            else:
+                sx = np.linspace(0.0, p.width, EXTREMES_SAMPLES)
+                sy = np.linspace(0.0, p.height, EXTREMES_SAMPLES)
+                self._samples = [_Samples(sx, sy, model._grid(sx, sy).temp)]
+        return self._samples
+
+    def candidates(self, surfaces: bool) -> _Candidates:
+        """Refined extremes of `samples` (with a scope per convection edge when `surfaces`)."""
+        if surfaces not in self._candidates:
+            self._candidates[surfaces] = _refined_candidates(self.model, self.samples(), surfaces)
+        return self._candidates[surfaces]
+
+
+@lru_cache(maxsize=CORE_CACHE_SIZE)
+def plate_core(definition: PlateProblem) -> PlateCore:
+    """The `PlateCore` of a plate definition (`definition_of`), kept for the
+    `CORE_CACHE_SIZE` most recently used definitions. Ill-posed definitions raise and are not
+    kept."""
+    return PlateCore(definition)
 
 
 # =========================================================================== entry points
@@ -2681,40 +2780,28 @@ def solve_plate(problem: PlateProblem) -> PlateResult:
     rectangular coordinates and the eigenfunctions and eigenvalues for the nine combinations of
     end conditions (from memory).
     """
-    model = PlateSeries(problem)
+    _validate(problem)  # the points and grid; the rest again in the definition's model
     p = problem
+    core = plate_core(definition_of(problem))
+    model, flows = core.model, core.flows
     w, h = p.width, p.height
     warnings: list[str] = []
-
-    # flows first: their mode tables (256 terms of every series, more for slow ones) then
-    # serve the evaluations below
-    flows = model.edge_heat_flows()
 
     pts = np.asarray(p.points, dtype=float).reshape(-1, 2)
     pts = np.array((np.clip(pts[:, 0], 0.0, w), np.clip(pts[:, 1], 0.0, h))).T.reshape(-1, 2)
     npts = pts.shape[0]
-    # where the extremes can lie (see `_sample_lines`); a fine output grid serves instead
-    fine_grid = p.grid is not None and min(p.grid) >= EXTREMES_SAMPLES
-    lines = _sample_lines(model) if p.generation == 0.0 and not fine_grid else []
-    meshes = [(np.tile(gx_l, gy_l.size).reshape(gy_l.size, gx_l.size),
-               np.repeat(gy_l, gx_l.size).reshape(gy_l.size, gx_l.size)) for gx_l, gy_l in lines]
-    # one pass for the points and the sample lines, terms chosen per point
-    temp, err, terms = np.zeros(0), np.zeros(0), np.zeros((0, 0), int)
-    if npts or meshes:
-        temp, err, terms = model._evaluate(
-            np.concatenate([pts[:, 0]] + [m[0].ravel() for m in meshes]),
-            np.concatenate([pts[:, 1]] + [m[1].ravel() for m in meshes]), None)
-    point_t, point_err = temp[:npts], err[:npts]
-    most = int(terms[:, :npts].max(initial=0))
+    point_t, point_err = np.zeros(0), np.zeros(0)
+    most = 0
+    if npts:
+        point_t, point_err, terms = model._evaluate(pts[:, 0], pts[:, 1], None)
+        most = int(terms.max(initial=0))
     errors = [float(point_err.max(initial=0.0))]
     reported = [(pts[:, 0], pts[:, 1], point_t)]
-    sets: list[_Samples] = []
-    start = npts
-    for (gx_l, gy_l), m in zip(lines, meshes, strict=True):
-        sets.append(_Samples(gx_l, gy_l, temp[start:start + m[0].size].reshape(m[0].shape)))
-        start += m[0].size
+    surfaces = p.limits.max_surface_temperature is not None
     gx = gy = grid_t = None
-    if p.grid is not None:
+    if p.grid is None:
+        cands = core.candidates(surfaces)
+    else:
         gx = np.linspace(0.0, w, int(p.grid[0]))
         gy = np.linspace(0.0, h, int(p.grid[1]))
         grid = model._grid(gx, gy)
@@ -2723,12 +2810,14 @@ def solve_plate(problem: PlateProblem) -> PlateResult:
         most = max(most, grid.most)
         xx, yy = np.meshgrid(gx, gy)
         reported.append((xx.ravel(), yy.ravel(), grid_t.ravel()))
-        sets.append(_Samples(gx, gy, grid_t))
-    if p.generation != 0.0 and not fine_grid:
-        sx = np.linspace(0.0, w, EXTREMES_SAMPLES)
-        sy = np.linspace(0.0, h, EXTREMES_SAMPLES)
-        sets.append(_Samples(sx, sy, model._grid(sx, sy).temp))
-    ext = _find_extremes(model, sets, reported, p.limits.max_surface_temperature is not None)
+        # a fine output grid serves as the samples where the extremes can lie
+        here = [_Samples(gx, gy, grid_t)]
+        if min(p.grid) >= EXTREMES_SAMPLES:
+            sets = here
+        else:  # the order decides ties between equal samples
+            sets = core.samples() + here if p.generation == 0.0 else here + core.samples()
+        cands = _refined_candidates(model, sets, surfaces)
+    ext = _pick_extremes(model, cands, reported)
     errors.append(ext.error)
     most = max(most, ext.most)
     error_estimate = max(errors)
