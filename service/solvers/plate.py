@@ -29,6 +29,7 @@ and the eigenvalue tables of `service.solvers.eigen`.
 from __future__ import annotations
 
 import math
+from collections import OrderedDict
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field, replace
 from functools import lru_cache
@@ -2635,11 +2636,13 @@ def _find_extremes(model: PlateSeries, sets: list[_Samples],
 
 
 #: Plate definitions whose series model, edge flows and refined extremes are kept per process
-#: (`plate_core`). A light request (a few points) then costs little more than evaluating its
+#: (`CORES`). A light request (a few points) then costs little more than evaluating its
 #: points when the same plate is asked again, as a spreadsheet does with one cell per point.
-#: Each entry holds its mode tables: about 0.1-2 MB (more with many terms near a singular
-#: corner), so the cache stays below about 64 MB.
 CORE_CACHE_SIZE = 32
+#: ... and at most this many bytes of mode tables and samples among them (a typical entry holds
+#: 0.1-0.3 MB; one with points very close to a data edge up to a few MB; one larger than this
+#: alone is not kept).
+CORE_CACHE_BYTES = 64 * 2**20
 
 
 def definition_of(problem: PlateProblem) -> PlateProblem:
@@ -2649,11 +2652,22 @@ def definition_of(problem: PlateProblem) -> PlateProblem:
     return replace(problem, points=(), grid=None, limits=Limits())
 
 
+def _nbytes(obj: object) -> int:
+    """Bytes of the numpy arrays held in nested tuples, lists and dicts."""
+    if isinstance(obj, np.ndarray):
+        return int(obj.nbytes)
+    if isinstance(obj, tuple | list):
+        return sum(_nbytes(v) for v in obj)
+    if isinstance(obj, dict):
+        return sum(_nbytes(v) for v in obj.values())
+    return 0
+
+
 class PlateCore:
     """What a series solve computes before it looks at the output points: the model, the edge
     heat flows, and the samples and refined candidates for the extremes.
 
-    Built once per plate definition and kept by `plate_core`. The model's mode tables grow as
+    Built once per plate definition and kept in `CORES`. The model's mode tables grow as
     requests need more terms (bounded by max_terms); results do not depend on that history,
     because each evaluation sums exactly the terms its truncation rule chooses. Not meant for
     concurrent use from several threads (the service's sync workers serve one request at a time).
@@ -2691,6 +2705,13 @@ class PlateCore:
                 self._samples = [_Samples(sx, sy, model._grid(sx, sy).temp)]
         return self._samples
 
+    def nbytes(self) -> int:
+        """Bytes of the tables and samples held (the model's stacked modes and each series'
+        own tables grow as requests need more terms)."""
+        model = self.model
+        return (_nbytes(list(model._stacks.values())) + _nbytes(self._samples or [])
+                + sum(_nbytes(list(s._tables.values())) for s in model.series))
+
     def candidates(self, surfaces: bool) -> _Candidates:
         """Refined extremes of `samples` (with a scope per convection edge when `surfaces`)."""
         if surfaces not in self._candidates:
@@ -2698,12 +2719,52 @@ class PlateCore:
         return self._candidates[surfaces]
 
 
-@lru_cache(maxsize=CORE_CACHE_SIZE)
-def plate_core(definition: PlateProblem) -> PlateCore:
-    """The `PlateCore` of a plate definition (`definition_of`), kept for the
-    `CORE_CACHE_SIZE` most recently used definitions. Ill-posed definitions raise and are not
-    kept."""
-    return PlateCore(definition)
+class CoreCache:
+    """Least recently used `PlateCore`s by definition: at most `entries` of them holding at
+    most `max_bytes` of tables. Sizes are taken again after every use, since a core's tables
+    grow when a request needs more terms."""
+
+    def __init__(self, entries: int, max_bytes: int) -> None:
+        self.entries = entries
+        self.max_bytes = max_bytes
+        self._cores: OrderedDict[PlateProblem, tuple[PlateCore, int]] = OrderedDict()
+        self.hits = 0
+        self.misses = 0
+
+    def get(self, definition: PlateProblem) -> PlateCore:
+        """The core of `definition`, built (and possibly raising) when not kept."""
+        kept = self._cores.get(definition)
+        if kept is not None:
+            self._cores.move_to_end(definition)
+            self.hits += 1
+            return kept[0]
+        self.misses += 1
+        core = PlateCore(definition)
+        self._cores[definition] = (core, 0)
+        return core
+
+    def settle(self, definition: PlateProblem) -> None:
+        """Measure `definition`'s core after a use, then drop the least recently used cores
+        until both bounds hold (the core itself too, when it alone is over `max_bytes`)."""
+        kept = self._cores.get(definition)
+        if kept is not None:
+            self._cores[definition] = (kept[0], kept[0].nbytes())
+        while self._cores and (len(self._cores) > self.entries or self.nbytes() > self.max_bytes):
+            self._cores.popitem(last=False)
+
+    def nbytes(self) -> int:
+        return sum(size for _, size in self._cores.values())
+
+    def __len__(self) -> int:
+        return len(self._cores)
+
+    def clear(self) -> None:
+        self._cores.clear()
+        self.hits = self.misses = 0
+
+
+#: The process's cores (see `CORE_CACHE_SIZE`; `CoreCache.clear` empties it).
+CORES = CoreCache(CORE_CACHE_SIZE, CORE_CACHE_BYTES)
 
 
 # =========================================================================== entry points
@@ -2781,8 +2842,17 @@ def solve_plate(problem: PlateProblem) -> PlateResult:
     end conditions (from memory).
     """
     _validate(problem)  # the points and grid; the rest again in the definition's model
+    definition = definition_of(problem)
+    core = CORES.get(definition)
+    try:
+        return _solve_with(problem, core)
+    finally:
+        CORES.settle(definition)
+
+
+def _solve_with(problem: PlateProblem, core: PlateCore) -> PlateResult:
+    """`solve_plate` for a problem whose definition's core is given."""
     p = problem
-    core = plate_core(definition_of(problem))
     model, flows = core.model, core.flows
     w, h = p.width, p.height
     warnings: list[str] = []
