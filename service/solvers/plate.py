@@ -2643,6 +2643,8 @@ CORE_CACHE_SIZE = 32
 #: 0.1-0.3 MB; one with points very close to a data edge up to a few MB; one larger than this
 #: alone is not kept).
 CORE_CACHE_BYTES = 64 * 2**20
+#: Output grid sizes per kept definition whose refined extremes are kept too.
+_GRID_CANDIDATES = 4
 
 
 def definition_of(problem: PlateProblem) -> PlateProblem:
@@ -2665,7 +2667,8 @@ def _nbytes(obj: object) -> int:
 
 class PlateCore:
     """What a series solve computes before it looks at the output points: the model, the edge
-    heat flows, and the samples and refined candidates for the extremes.
+    heat flows, and the samples and refined candidates for the extremes (with no output grid,
+    and for the last few output grid sizes).
 
     Built once per plate definition and kept in `CORES`. The model's mode tables grow as
     requests need more terms (bounded by max_terms); results do not depend on that history,
@@ -2680,6 +2683,8 @@ class PlateCore:
         self.flows = self.model.edge_heat_flows()
         self._samples: list[_Samples] | None = None
         self._candidates: dict[bool, _Candidates] = {}
+        self._grid_candidates: dict[tuple[int, int, bool], _Candidates] = {}
+        self._measured: tuple[tuple[int | bool, ...], int] = ((), 0)
 
     def samples(self) -> list[_Samples]:
         """Where the extremes can lie when no fine output grid is asked: the flux and
@@ -2707,10 +2712,35 @@ class PlateCore:
 
     def nbytes(self) -> int:
         """Bytes of the tables and samples held (the model's stacked modes and each series'
-        own tables grow as requests need more terms)."""
+        own tables grow as requests need more terms: measured again only when one was added)."""
         model = self.model
-        return (_nbytes(list(model._stacks.values())) + _nbytes(self._samples or [])
-                + sum(_nbytes(list(s._tables.values())) for s in model.series))
+        shape = (len(model._stacks), self._samples is None,
+                 *(len(s._tables) for s in model.series))
+        if shape != self._measured[0]:
+            size = (_nbytes(list(model._stacks.values())) + _nbytes(self._samples or [])
+                    + sum(_nbytes(list(s._tables.values())) for s in model.series))
+            self._measured = (shape, size)
+        return self._measured[1]
+
+    def grid_candidates(self, gx: _Array, gy: _Array, temp: _Array,
+                        surfaces: bool) -> _Candidates:
+        """Refined extremes for an output grid (gx, gy) with temperatures `temp` (a fine grid
+        serves as the samples; a coarse one joins `samples`), kept for the last
+        `_GRID_CANDIDATES` grid sizes."""
+        key = (gx.size, gy.size, surfaces)
+        hit = self._grid_candidates.pop(key, None)
+        if hit is None:
+            here = [_Samples(gx, gy, temp)]
+            if min(gx.size, gy.size) >= EXTREMES_SAMPLES:
+                sets = here
+            else:  # the order decides ties between equal samples
+                sets = (self.samples() + here if self.model.problem.generation == 0.0
+                        else here + self.samples())
+            hit = _refined_candidates(self.model, sets, surfaces)
+        self._grid_candidates[key] = hit  # most recent last
+        while len(self._grid_candidates) > _GRID_CANDIDATES:
+            del self._grid_candidates[next(iter(self._grid_candidates))]
+        return hit
 
     def candidates(self, surfaces: bool) -> _Candidates:
         """Refined extremes of `samples` (with a scope per convection edge when `surfaces`)."""
@@ -2880,13 +2910,7 @@ def _solve_with(problem: PlateProblem, core: PlateCore) -> PlateResult:
         most = max(most, grid.most)
         xx, yy = np.meshgrid(gx, gy)
         reported.append((xx.ravel(), yy.ravel(), grid_t.ravel()))
-        # a fine output grid serves as the samples where the extremes can lie
-        here = [_Samples(gx, gy, grid_t)]
-        if min(p.grid) >= EXTREMES_SAMPLES:
-            sets = here
-        else:  # the order decides ties between equal samples
-            sets = core.samples() + here if p.generation == 0.0 else here + core.samples()
-        cands = _refined_candidates(model, sets, surfaces)
+        cands = core.grid_candidates(gx, gy, grid_t, surfaces)
     ext = _pick_extremes(model, cands, reported)
     errors.append(ext.error)
     most = max(most, ext.most)
