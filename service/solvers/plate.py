@@ -29,7 +29,6 @@ and the eigenvalue tables of `service.solvers.eigen`.
 from __future__ import annotations
 
 import math
-from collections import OrderedDict
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field, replace
 from functools import lru_cache
@@ -2757,15 +2756,19 @@ class CoreCache:
     def __init__(self, entries: int, max_bytes: int) -> None:
         self.entries = entries
         self.max_bytes = max_bytes
-        self._cores: OrderedDict[PlateProblem, tuple[PlateCore, int]] = OrderedDict()
+        # a plain dict keeps insertion order (least recently used first) and, unlike
+        # OrderedDict, iterates its values without hashing every key again (a definition's
+        # hash walks all its fields)
+        self._cores: dict[PlateProblem, tuple[PlateCore, int]] = {}
+        self._bytes = 0
         self.hits = 0
         self.misses = 0
 
     def get(self, definition: PlateProblem) -> PlateCore:
         """The core of `definition`, built (and possibly raising) when not kept."""
-        kept = self._cores.get(definition)
+        kept = self._cores.pop(definition, None)
         if kept is not None:
-            self._cores.move_to_end(definition)
+            self._cores[definition] = kept  # now the most recently used
             self.hits += 1
             return kept[0]
         self.misses += 1
@@ -2778,18 +2781,22 @@ class CoreCache:
         until both bounds hold (the core itself too, when it alone is over `max_bytes`)."""
         kept = self._cores.get(definition)
         if kept is not None:
-            self._cores[definition] = (kept[0], kept[0].nbytes())
-        while self._cores and (len(self._cores) > self.entries or self.nbytes() > self.max_bytes):
-            self._cores.popitem(last=False)
+            size = kept[0].nbytes()
+            self._bytes += size - kept[1]
+            self._cores[definition] = (kept[0], size)
+        while self._cores and (len(self._cores) > self.entries or self._bytes > self.max_bytes):
+            oldest = next(iter(self._cores))
+            self._bytes -= self._cores.pop(oldest)[1]
 
     def nbytes(self) -> int:
-        return sum(size for _, size in self._cores.values())
+        return self._bytes
 
     def __len__(self) -> int:
         return len(self._cores)
 
     def clear(self) -> None:
         self._cores.clear()
+        self._bytes = 0
         self.hits = self.misses = 0
 
 
