@@ -110,38 +110,3 @@ def test_select_all_expands_stars():
     body = {"results": {"points": [{"t": 1.0}, {"t": 2.0}], "one": 3.0}}
     assert _select_all(body, "results.points.*.t") == [1.0, 2.0]
     assert _select_all(body, "results.one") == [3.0]
-
-
-def test_iso10211_case2_points_with_the_junction_balance(app):
-    # the case 2 construction at the report's grid, post-processed with the cell
-    # conductivities (the dual-volume balance at junctions of materials, which solve_grid does
-    # not use yet): every published point, G at the flange tip included, within the 0.1 K
-    # acceptance (EN ISO 10211 case 2, values as transcribed in public open-source
-    # validations; measured: G 16.35, D 6.21 degC)
-    from service.api.common import FAMILIES
-    from service.solvers.grid_assembly import build_boundary, build_materials
-    from service.solvers.grid_mesh import build_mesh
-    from service.solvers.grid_post import face_temperatures, interpolate_points
-    from service.solvers.grid_solve import (
-        Outcome,
-        Setup,
-        SolverCache,
-        linear_solver_for,
-        solve_steady_state,
-    )
-    from service.verification import _ISO2_GRID, ISO2_POINTS
-
-    named = [*ISO2_POINTS, ("G", 0.015, 0.0365, 16.3)]
-    points = np.array([[x, y] for _, x, y, _ in named])
-    with app.test_request_context():
-        problem = FAMILIES["grid"].request_schema.load(
-            {**_ISO2_GRID, "points": points.tolist()}).problem
-    mesh = build_mesh(problem)
-    materials = build_materials(problem, mesh)
-    setup = Setup(problem, mesh, materials, build_boundary(problem, mesh), False, problem.atol)
-    state = solve_steady_state(setup, SolverCache(linear_solver_for(problem, mesh.cells)),
-                               Outcome())
-    tx, ty, _ = face_temperatures(setup, state)
-    computed = interpolate_points(mesh, materials.ids, state.temperature, tx, ty, points,
-                                  state.lin.k)
-    np.testing.assert_allclose(computed, [v for *_, v in named], rtol=0.0, atol=0.1)
