@@ -263,10 +263,13 @@ def _estimate_errors(
     worst = np.zeros(probes.shape[0])
     for mine, theirs in zip(run.outputs, other.outputs, strict=False):
         tx, ty, _ = face_temperatures(run.setup, mine)
-        a = interpolate_points(mesh, run.setup.materials.ids, mine.temperature, tx, ty, probes)
+        a = interpolate_points(
+            mesh, run.setup.materials.ids, mine.temperature, tx, ty, probes, mine.lin.k
+        )
         tx2, ty2, _ = face_temperatures(other.setup, theirs)
         b = interpolate_points(
-            other.setup.mesh, other.setup.materials.ids, theirs.temperature, tx2, ty2, probes
+            other.setup.mesh, other.setup.materials.ids, theirs.temperature, tx2, ty2, probes,
+            theirs.lin.k,
         )
         # error of this grid for order p = 2: refined: |a-b| * 4/3; coarsened: |a-b| / 3
         worst = np.maximum(worst, np.abs(a - b) * (4.0 / 3.0 if refine else 1.0 / 3.0))
@@ -378,7 +381,9 @@ def solve_grid(problem: GridProblem) -> GridResult:
     else:
         residual = outcome.residual  # largest over all time steps
     tx, ty, surf = face_temperatures(setup, final)
-    point_t = interpolate_points(mesh, setup.materials.ids, final.temperature, tx, ty, points)
+    point_t = interpolate_points(
+        mesh, setup.materials.ids, final.temperature, tx, ty, points, final.lin.k
+    )
     edges = segment_flows(setup, final, surf)
     inflow = boundary_inflow(setup, final.lin, final.temperature)
 
@@ -460,7 +465,9 @@ def _history(problem: GridProblem, run: _Run, points: _Array) -> TransientHistor
     for st in run.outputs:
         tx, ty, surf = face_temperatures(setup, st)
         pts.append(
-            interpolate_points(setup.mesh, setup.materials.ids, st.temperature, tx, ty, points)
+            interpolate_points(
+                setup.mesh, setup.materials.ids, st.temperature, tx, ty, points, st.lin.k
+            )
         )
         if problem.output_grid:
             fields.append(st.temperature.copy())

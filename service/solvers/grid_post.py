@@ -98,7 +98,13 @@ def face_temperatures(setup: Setup, state: State) -> tuple[_Array, _Array, _Arra
 
 
 def vertex_temperatures(
-    mesh: Mesh, ids: _Array, tx: _Array, ty: _Array, i_f: _Array, j_f: _Array
+    mesh: Mesh,
+    ids: _Array,
+    tx: _Array,
+    ty: _Array,
+    i_f: _Array,
+    j_f: _Array,
+    k: _Array | None = None,
 ) -> _Array:
     """Temperatures at grid vertices (i_f, j_f), degC, from the face temperatures around them.
 
@@ -109,8 +115,49 @@ def vertex_temperatures(
     extrapolated along its two edges (no extrapolation across a material interface or towards
     the axis), kept within the range of the faces used. Elsewhere the line lying on a material
     interface is used (its faces carry the flux-continuous values, whereas interpolating
-    across the interface would miss the kink in the profile); with no interface, or both, the
-    mean of the two lines.
+    across the interface would miss the kink in the profile); with no interface, the mean of
+    the two lines. Where both a vertical and a horizontal interface pass through an interior
+    vertex (a corner or junction of materials) and the cell conductivities ``k`` (ny, nx),
+    W/(m K), are given, the heat balance of the vertex's dual control volume (below); without
+    ``k`` there, the mean of the two lines.
+
+    Notes
+    -----
+    Dual-volume balance at a junction of materials. The dual control volume is the rectangle
+    around the vertex reaching halfway to the four neighbouring cell centres; each quarter of
+    it lies in one cell, so in one material. Its four arms run along the grid lines from the
+    vertex to the four face centres around it, where the flux-continuous face temperatures
+    T_f are known. The heat flowing in through the side crossed by an arm is estimated along
+    that arm, in each of the two materials the side passes through::
+
+        Q_f = g_f (T_f - T_v),   g_f = sum over the two quarters q of k_q A_q / L_f
+
+    with L_f the arm length (vertex to face centre) and A_q the part of the side in quarter
+    q (planar: half the quarter's extent across the arm; axisymmetric: that times 2 pi r at
+    a radial side, the annulus between the vertex radius and the side at an axial side).
+    Steady conduction without a source in the small volume (sum of Q_f = 0, the energy
+    balance) then gives::
+
+        T_v = sum g_f T_f / sum g_f
+
+    a conductance-weighted mean in which a highly conductive material dominates, as the
+    continuous temperature does at the tip of a metal profile in insulation, where the
+    field in the low-conductivity material is singular (gradients growing like r^(lambda-1),
+    lambda < 1, towards the corner) and the cell values there approach T_v only slowly.
+    These are the vertex equations of linear finite elements on the triangles (vertex, two
+    face centres) of each quarter (right triangles, so the weights are positive and the
+    value stays within the range of the four faces). The balance is exact for
+    piecewise-linear fields with continuous flux (layered media, a linear field in one
+    material). In one material on a planar grid (zones of equal conductivity) both grid
+    lines give the bilinear interpolation of the four cells and the balance, a weighted mean
+    of the two lines there, gives the same value. Generation inside the small volume is
+    neglected (it changes T_v by O(q h^2 / k)).
+
+    References
+    ----------
+    Baliga, B. R. and Patankar, S. V., "A control volume finite-element method for
+    two-dimensional fluid flow and heat transfer", Numerical Heat Transfer 6 (1983) 245-261
+    (the control-volume finite-element vertex balance; from memory).
     """
     nx, ny = mesh.nx, mesh.ny
     xf, yf, xc, yc = mesh.x_faces, mesh.y_faces, mesh.x, mesh.y
@@ -152,10 +199,17 @@ def vertex_temperatures(
     # and ib, a horizontal one rows ja and jb
     vertical = (ib > ia) & ((ids[ja, ia] != ids[ja, ib]) | (ids[jb, ia] != ids[jb, ib]))
     horizontal = (jb > ja) & ((ids[ja, ia] != ids[jb, ia]) | (ids[ja, ib] != ids[jb, ib]))
+    junction = 0.5 * (along_x + along_y)
+    if k is not None:
+        junction = np.where(
+            vertical & horizontal,
+            _junction_balance(mesh, k, tx, ty, i_f, j_f, ia, ib, ja, jb),
+            junction,
+        )
     interior = np.where(
         vertical & ~horizontal,
         along_x,
-        np.where(horizontal & ~vertical, along_y, 0.5 * (along_x + along_y)),
+        np.where(horizontal & ~vertical, along_y, junction),
     )
     # on an edge, the line along the edge unless a material interface meets the edge there:
     # then the line along the interface (extrapolated to the edge)
@@ -168,8 +222,66 @@ def vertex_temperatures(
     )
 
 
+def _junction_balance(
+    mesh: Mesh,
+    k: _Array,
+    tx: _Array,
+    ty: _Array,
+    i_f: _Array,
+    j_f: _Array,
+    ia: _Array,
+    ib: _Array,
+    ja: _Array,
+    jb: _Array,
+) -> _Array:
+    """Vertex temperatures, degC, from the heat balance of each vertex's dual control volume.
+
+    See `vertex_temperatures` (Notes). Meaningful at interior vertices (ia < ib, ja < jb);
+    elsewhere it returns finite values that the caller discards.
+    """
+    xv, yv = mesh.x_faces[i_f], mesh.y_faces[j_f]
+    # arm lengths: vertex to the face centres west, east (y faces), south, north (x faces)
+    aw = np.maximum(xv - mesh.x[ia], 0.0)
+    ae = np.maximum(mesh.x[ib] - xv, 0.0)
+    bs = np.maximum(yv - mesh.y[ja], 0.0)
+    bn = np.maximum(mesh.y[jb] - yv, 0.0)
+    k_sw, k_se, k_nw, k_ne = k[ja, ia], k[ja, ib], k[jb, ia], k[jb, ib]
+    # sides of the dual volume: the west and east sides, per unit of their height (the
+    # part in a quarter is half the quarter's height), and the parts of the south and north
+    # sides west and east of the vertex (half the quarter's width)
+    if mesh.geometry == "axisymmetric":
+        rw, re = xv - 0.5 * aw, xv + 0.5 * ae  # radii of the west and east sides
+        side_w = math.pi * rw  # 2 pi r x (half the quarter's height) / that height
+        side_e = math.pi * re
+        ring_w = math.pi * (xv * xv - rw * rw)  # annuli between the vertex and the sides
+        ring_e = math.pi * (re * re - xv * xv)
+    else:
+        side_w = side_e = np.full(xv.shape, 0.5)
+        ring_w, ring_e = 0.5 * aw, 0.5 * ae
+    with np.errstate(divide="ignore", invalid="ignore"):
+        # conductances of the four arms, W/K per m depth (planar) or W/K: the parallel
+        # conductance of the two quarters each side of the dual volume passes through
+        g_w = np.where(aw > 0.0, side_w * (k_sw * bs + k_nw * bn) / aw, 0.0)
+        g_e = np.where(ae > 0.0, side_e * (k_se * bs + k_ne * bn) / ae, 0.0)
+        g_s = np.where(bs > 0.0, (k_sw * ring_w + k_se * ring_e) / bs, 0.0)
+        g_n = np.where(bn > 0.0, (k_nw * ring_w + k_ne * ring_e) / bn, 0.0)
+        total = g_w + g_e + g_s + g_n
+        # energy balance of the dual volume: sum g_f (T_f - T_v) = 0
+        balance = (
+            g_w * ty[j_f, ia] + g_e * ty[j_f, ib] + g_s * tx[ja, i_f] + g_n * tx[jb, i_f]
+        ) / np.where(total > 0.0, total, 1.0)
+    mean = 0.25 * (ty[j_f, ia] + ty[j_f, ib] + tx[ja, i_f] + tx[jb, i_f])
+    return np.where(total > 0.0, balance, mean)
+
+
 def interpolate_points(
-    mesh: Mesh, ids: _Array, temperature: _Array, tx: _Array, ty: _Array, points: _Array
+    mesh: Mesh,
+    ids: _Array,
+    temperature: _Array,
+    tx: _Array,
+    ty: _Array,
+    points: _Array,
+    k: _Array | None = None,
 ) -> _Array:
     """Temperatures at points, degC, from the containing cell and its face temperatures.
 
@@ -181,7 +293,9 @@ def interpolate_points(
 
     with f_x linear in x (in ln r for axisymmetric radial faces, exact for a source-free shell)
     and f_y linear in y. The cell holds one material and its face values are the
-    flux-continuous ones, so the interpolation stays honest across zone boundaries.
+    flux-continuous ones, so the interpolation stays honest across zone boundaries. ``k``
+    (ny, nx), W/(m K), the cell conductivities, gives vertices where materials meet their
+    dual-volume balance value (see `vertex_temperatures`).
     """
     if points.size == 0:
         return np.zeros(0)
@@ -209,7 +323,7 @@ def interpolate_points(
     j_f = np.where(north, j + 1, j)
     tfy = ty[j_f, i]
     fy = (py - yc) / (yf[j_f] - yc)
-    tv = vertex_temperatures(mesh, ids, tx, ty, i_f, j_f)
+    tv = vertex_temperatures(mesh, ids, tx, ty, i_f, j_f, k)
     return tc + fx * (tfx - tc) + fy * (tfy - tc) + fx * fy * (tv - tfx - tfy + tc)
 
 
