@@ -21,6 +21,9 @@ service/ops/deadline.py works; the same throughput; gunicorn's own parser, limit
    oldest incomplete connection is closed); a declared `Content-Length` above the body limit
    (CONDUCTION_MAX_BODY_BYTES) is served at once so the app answers its own 413 without the
    body being read, and a chunked body that grows past the limit is answered 413 here.
+   The request line is held to limit_request_line here too (414): gunicorn's own parser
+   lowers any limit above 8190 bytes to 8190, which would refuse the 16 KiB spreadsheet GETs
+   the service promises, so the parser is given no line limit (`ParserConfig`).
 4. After a response, gunicorn closes gracefully (half-close, then read until the client
    closes, at most 2 s) so unread request bytes cannot turn the close into a reset that cuts
    the response. That wait happens in the selector loop instead of in the worker's hands.
@@ -138,6 +141,29 @@ class WorkerSettings:
         )
 
 
+def line_limit_of(cfg: Any) -> int:
+    """limit_request_line as configured, bytes without CRLF (0: none; gunicorn refuses
+    negative values)."""
+    return int(cfg.limit_request_line)
+
+
+class ParserConfig:
+    """The worker's gunicorn config, except that the parser sees no request-line limit.
+
+    gunicorn (27) silently lowers any limit_request_line above 8190 to 8190; only 0 lifts it.
+    The worker enforces the configured limit itself on the buffered head (answering 414), and
+    the head can never exceed `head_limit_of(cfg)`, so the parser's 0 is still bounded.
+    """
+
+    limit_request_line = 0
+
+    def __init__(self, cfg: Any) -> None:
+        self._cfg = cfg
+
+    def __getattr__(self, name: str) -> Any:
+        return getattr(self._cfg, name)
+
+
 def head_limit_of(cfg: Any) -> int:
     """Largest head gunicorn's parser can accept with these settings, bytes (its own
     max_buffer_headers plus the request line; 0 limits mean gunicorn's defaults)."""
@@ -158,6 +184,7 @@ class Verdict(enum.Enum):
     PASS = "pass"            # cannot be framed here (malformed, or a body that is refused
                              # anyway): let gunicorn's parser or the app answer it now
     TOO_LARGE = "too_large"  # a chunked body beyond the body limit: answer 413 here
+    LINE_TOO_LONG = "line_too_long"  # request line beyond limit_request_line: answer 414
 
 
 class RequestBuffer:
@@ -169,13 +196,16 @@ class RequestBuffer:
     this does not understand is `PASS`ed to gunicorn's parser, which is stricter and answers it.
     """
 
-    __slots__ = ("data", "max_body_bytes", "head_limit", "head_end", "body_end", "chunked",
-                 "chunk_at", "chunk_data", "expects_continue", "_scanned")
+    __slots__ = ("data", "max_body_bytes", "head_limit", "line_limit", "head_end", "body_end",
+                 "chunked", "chunk_at", "chunk_data", "expects_continue", "_scanned",
+                 "_line_done")
 
-    def __init__(self, max_body_bytes: int, head_limit: int) -> None:
+    def __init__(self, max_body_bytes: int, head_limit: int, line_limit: int = 0) -> None:
         self.data = bytearray()
         self.max_body_bytes = max_body_bytes
         self.head_limit = head_limit
+        self.line_limit = line_limit  # longest request line, bytes without CRLF; 0: no limit
+        self._line_done = line_limit <= 0
         self.head_end = -1           # offset just past the head's CRLF CRLF
         self.body_end = -1           # offset just past a Content-Length body
         self.chunked = False
@@ -205,6 +235,12 @@ class RequestBuffer:
         # RFC 9112 section 2.2: one empty line before the request line is ignored
         start = 2 if data[:2] == b"\r\n" else 0
         begin = max(start, self._scanned - 3)
+        if not self._line_done:
+            # gunicorn's rule (its read_line): the line without CRLF may be `limit` bytes long
+            eol = data.find(b"\r\n", max(start, self._scanned - 1))
+            if (eol if eol >= 0 else len(data) - 2) - start > self.line_limit:
+                return Verdict.LINE_TOO_LONG
+            self._line_done = eol >= 0
         end = data.find(b"\r\n\r\n", begin)
         if end < 0:
             # a bare LF never ends a head the way gunicorn reads it: it refuses it at once
@@ -441,6 +477,10 @@ class RequestBufferingWorker(SyncWorker):
             super().run()
             return
         self.settings = self._load_settings(self.cfg)
+        self.line_limit = line_limit_of(self.cfg)
+        # gunicorn's parser caps any limit_request_line above 8190 at 8190 (only 0 lifts it),
+        # so it is enforced here, on the buffered head, and the parser gets 0
+        self.cfg = ParserConfig(self.cfg)
         self._pending: OrderedDict[int, _Pending] = OrderedDict()
         self._lingering: OrderedDict[int, _Lingering] = OrderedDict()
         self._ready: deque[_Pending] = deque()
@@ -540,7 +580,7 @@ class RequestBufferingWorker(SyncWorker):
             pending = _Pending(sock, addr, listener,
                                time.monotonic() + self.settings.read_seconds,
                                RequestBuffer(self.settings.max_body_bytes,
-                                             self.settings.head_limit))
+                                             self.settings.head_limit, self.line_limit))
             self._pending[pending.fd] = pending
             self._read(pending)  # the request has usually arrived with the connection
 
@@ -572,6 +612,11 @@ class RequestBufferingWorker(SyncWorker):
             self._answer(pending.sock, 413, "/problems/too-large",
                          f"Request body exceeds the limit of "
                          f"{self.settings.max_body_bytes} bytes.")
+        elif verdict is Verdict.LINE_TOO_LONG:
+            self._forget(pending)
+            self._answer(pending.sock, 414, "/problems/bad-request",
+                         f"The request line is longer than the limit of {self.line_limit} "
+                         "bytes: send the problem as a POST body instead.")
         else:
             self._forget(pending)
             self._ready.append(pending)
@@ -717,7 +762,8 @@ def problem_bytes(status: int, type_: str, detail: str) -> bytes:
         title = type_.rsplit("/", 1)[-1].replace("-", " ").capitalize()
     body = json.dumps({"type": type_, "title": title, "status": status, "detail": detail},
                       separators=(",", ":")).encode()
-    reason = {408: "Request Timeout", 413: "Content Too Large"}.get(status, "Error")
+    reason = {408: "Request Timeout", 413: "Content Too Large", 414: "URI Too Long"}.get(
+        status, "Error")
     head = (f"HTTP/1.1 {status} {reason}\r\nConnection: close\r\n"
             f"Content-Type: application/problem+json\r\nContent-Length: {len(body)}\r\n\r\n")
     return head.encode("latin-1") + body
