@@ -27,6 +27,10 @@ service/ops/deadline.py works; the same throughput; gunicorn's own parser, limit
 4. After a response, gunicorn closes gracefully (half-close, then read until the client
    closes, at most 2 s) so unread request bytes cannot turn the close into a reset that cuts
    the response. That wait happens in the selector loop instead of in the worker's hands.
+5. Stopping (SIGTERM after the drain, or `max_requests`): no more accepts; connections that
+   have not sent a byte are closed; requests already arriving keep their read deadline and are
+   served if they complete (as the plain sync worker finishes the request it is reading), so a
+   stop waits at most REQUEST_READ_SECONDS for slow clients, then for the request being served.
 
 Requests that the buffer cannot frame (a malformed head, conflicting lengths, an unknown
 transfer coding) are handed to gunicorn as they are, at once, so its parser answers them as it
@@ -439,7 +443,9 @@ class RequestBufferingWorker(SyncWorker):
     every request on the main thread.
     """
 
+    cfg: Any  # gunicorn's Config; in run() the `ParserConfig` around it
     settings: WorkerSettings
+    line_limit: int
 
     @classmethod
     def check_config(cls, cfg: Any, log: Any) -> None:
@@ -508,15 +514,20 @@ class RequestBufferingWorker(SyncWorker):
         accepting = True
         while True:
             self.notify()
-            if accepting and not (self.alive and self.is_parent_alive()):
-                # graceful stop (or max_requests): no new connections, half-sent requests
-                # dropped; complete ones are still served and lingering closes finished
+            if not self.is_parent_alive():
+                return
+            if accepting and not self.alive:
+                # graceful stop (or max_requests): no new connections, and those that have
+                # not begun a request are closed. Requests already arriving keep their read
+                # deadline, as under the plain sync worker a request being received is
+                # finished, so a stop waits at most REQUEST_READ_SECONDS for them.
                 accepting = False
                 for listener in self.sockets:
                     self._selector.unregister(listener)
                 for pending in list(self._pending.values()):
-                    self._drop(pending)
-            if not accepting and not self._ready and not self._lingering:
+                    if not pending.buffer.data:
+                        self._drop(pending)
+            if not (accepting or self._ready or self._pending or self._lingering):
                 return
             now = time.monotonic()
             wait = 0.0 if self._ready else self._next_wakeup(now, timeout)
@@ -537,8 +548,6 @@ class RequestBufferingWorker(SyncWorker):
             self._expire(now)
             self._report(now)
             if self._ready:
-                if not accepting and not self.is_parent_alive():
-                    return
                 self._serve(self._ready.popleft())
 
     def _next_wakeup(self, now: float, timeout: float) -> float:

@@ -231,19 +231,27 @@ def test_a_16_kib_request_line_is_served_and_a_longer_one_refused(slow_server):
         "The request line is longer than the limit of 16384 bytes")
 
 
-def test_graceful_stop_drops_half_sent_requests_and_exits_promptly():
-    proc, base = start_server(workers=1)
+def test_a_stop_finishes_arriving_requests_within_the_read_deadline_and_no_later():
+    proc, base = start_server({"CONDUCTION_REQUEST_READ_SECONDS": str(READ_SECONDS)},
+                              workers=1)
     port = int(base.rsplit(":", 1)[1])
-    half = connect(port)
+    idle, half, finishing = connect(port), connect(port), connect(port)
     try:
-        half.sendall(plate_request()[:-5])
+        data = plate_request()
+        half.sendall(data[:-5])
+        finishing.sendall(data[:-5])
         time.sleep(0.3)
         assert requests.get(base + "/healthz", timeout=5).status_code == 200
         started = time.monotonic()
         proc.send_signal(signal.SIGTERM)
-        proc.wait(timeout=15)
-        assert time.monotonic() - started < 5  # not held by the half-sent request
-        assert read_all(half) == b""  # dropped without an answer
+        assert read_all(idle) == b""  # had not begun a request: closed at once
+        assert time.monotonic() - started < READ_SECONDS
+        finishing.sendall(data[-5:])  # a request being received is still served
+        assert status_and_body(read_all(finishing))[0] == 200
+        assert status_and_body(read_all(half))[0] == 408  # the other gets its deadline
+        assert proc.wait(timeout=15) == 0
+        assert time.monotonic() - started < READ_SECONDS + 3  # not held by the slow client
     finally:
-        half.close()
+        for sock in (idle, half, finishing):
+            sock.close()
         stop_server(proc)
