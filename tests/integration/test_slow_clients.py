@@ -24,13 +24,15 @@ from tests.integration.test_faults import _workers
 
 READ_SECONDS = 1.5
 MAX_BODY = 200_000
+PENDING = 25  # incomplete requests per worker
 PLATE_BODY = json.dumps(PLATE_PAYLOAD).encode()
 
 
 @pytest.fixture(scope="module")
 def slow_server():
     proc, base = start_server({"CONDUCTION_REQUEST_READ_SECONDS": str(READ_SECONDS),
-                               "CONDUCTION_MAX_BODY_BYTES": str(MAX_BODY)}, workers=2)
+                               "CONDUCTION_MAX_BODY_BYTES": str(MAX_BODY),
+                               "CONDUCTION_PENDING_CONNECTIONS": str(PENDING)}, workers=2)
     yield proc, base, int(base.rsplit(":", 1)[1])
     stop_server(proc)
 
@@ -103,6 +105,30 @@ def test_half_sent_requests_do_not_block_other_clients(slow_server):
         for sock in slow:
             sock.close()
     assert _workers(proc.pid) == workers_before  # heartbeats kept: no worker was killed
+
+
+def test_beyond_the_pending_cap_the_oldest_incomplete_connections_are_closed(slow_server):
+    _, base, port = slow_server
+    opened: list[socket.socket] = []
+    try:
+        for _ in range(2 * PENDING + 10):
+            sock = connect(port)
+            sock.sendall(plate_request()[:-10])
+            opened.append(sock)
+        time.sleep(0.2)
+        assert requests.post(base + "/v1/plate", json=PLATE_PAYLOAD, timeout=5).status_code == 200
+        closed = []
+        for sock in opened:  # well before the read deadline: only evictions have happened
+            sock.setblocking(False)
+            try:
+                closed.append(sock.recv(1) == b"")
+            except BlockingIOError:
+                closed.append(False)
+        assert sum(closed) >= 10  # two workers hold at most 2 * PENDING
+        assert not any(closed[-10:])  # the newest were kept
+    finally:
+        for sock in opened:
+            sock.close()
 
 
 @pytest.mark.parametrize("shape", ["head", "body", "trickle"])
