@@ -52,6 +52,7 @@ from __future__ import annotations
 import enum
 import errno
 import json
+import math
 import os
 import selectors
 import socket
@@ -128,8 +129,8 @@ class WorkerSettings:
                 value = kind(raw)
             except ValueError:
                 raise ValueError(f"{name}={raw!r} is not a valid {kind.__name__}") from None
-            if not value > 0:
-                raise ValueError(f"{name}={raw!r} must be positive")
+            if not (value > 0 and math.isfinite(value)):
+                raise ValueError(f"{name}={raw!r} must be positive and finite")
             return value
 
         base = cls()

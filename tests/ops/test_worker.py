@@ -241,7 +241,8 @@ def test_settings_defaults_and_environment():
 
 @pytest.mark.parametrize(("name", "raw", "message"), [
     ("CONDUCTION_REQUEST_READ_SECONDS", "soon", "is not a valid float"),
-    ("CONDUCTION_PENDING_CONNECTIONS", "0", "must be positive"),
+    ("CONDUCTION_PENDING_CONNECTIONS", "0", "must be positive and finite"),
+    ("CONDUCTION_REQUEST_READ_SECONDS", "inf", "must be positive and finite"),
     ("CONDUCTION_PENDING_BYTES", "1.5", "is not a valid int"),
 ])
 def test_bad_settings_name_the_variable(name, raw, message):
