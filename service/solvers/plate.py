@@ -30,7 +30,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable, Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from functools import lru_cache
 from types import MappingProxyType
 from typing import NamedTuple
@@ -2552,14 +2552,20 @@ class _Extremes(NamedTuple):
     most: int
 
 
-def _find_extremes(model: PlateSeries, sets: list[_Samples],
-                   reported: list[tuple[_Array, _Array, _Array]], surfaces: bool) -> _Extremes:
-    """Hottest and coldest over the plate, and per convection edge when `surfaces`.
+class _Candidates(NamedTuple):
+    """Refined extremes of a set of samples, before the reported values join them."""
 
-    Candidates: the best samples refined locally (`_refine`), every reported value (points and
-    grid: already counted in the error estimate) and the exact fixed-temperature data (which
-    win ties). `error` and `most` cover the refined values that are reported.
-    """
+    found: list[_Found]   # refined body seeds (hottest, coldest), then two per exposed edge
+    nbody: int            # how many of `found` are body seeds
+    signs: list[float]    # the sign of each body seed
+    exposed: list[str]    # convection edges with their own scope
+    data: list[_Found]    # exact fixed-temperature data
+
+
+def _refined_candidates(model: PlateSeries, sets: list[_Samples],
+                        surfaces: bool) -> _Candidates:
+    """The best samples refined locally (`_refine`), for the body and, when `surfaces`, per
+    convection edge; and the exact fixed-temperature data."""
     p = model.problem
     w, h = p.width, p.height
     seeds: list[_Seed] = []
@@ -2580,6 +2586,20 @@ def _find_extremes(model: PlateSeries, sets: list[_Samples],
         seeds += [_seed(model, line, sign) for sign in (1.0, -1.0)]
     found = _refine(model, seeds)
     data = [_Found(t, x, y, 0.0, 0) for t, x, y in _boundary_candidates(model)]
+    return _Candidates(found, nbody, [s.sign for s in seeds[:nbody]], exposed, data)
+
+
+def _pick_extremes(model: PlateSeries, cands: _Candidates,
+                   reported: list[tuple[_Array, _Array, _Array]]) -> _Extremes:
+    """Hottest and coldest over the plate, and per convection edge in `cands.exposed`.
+
+    Candidates: the refined samples, every reported value (points and grid: already counted
+    in the error estimate) and the exact fixed-temperature data (which win ties). `error` and
+    `most` cover the refined values that are reported.
+    """
+    p = model.problem
+    w, h = p.width, p.height
+    found, nbody = cands.found, cands.nbody
     values = []
     for xs_r, ys_r, ts_r in reported:
         for sign in (1.0, -1.0):
@@ -2588,8 +2608,8 @@ def _find_extremes(model: PlateSeries, sets: list[_Samples],
                 values.append(_Found(float(ts_r[i]), float(xs_r[i]), float(ys_r[i]), 0.0, 0))
     chosen: list[_Found] = []
 
-    def pick(sign: float, cands: list[_Found], exact: list[_Found]) -> Location:
-        best = max(cands, key=lambda c: sign * c.temperature) if cands else None
+    def pick(sign: float, options: list[_Found], exact: list[_Found]) -> Location:
+        best = max(options, key=lambda c: sign * c.temperature) if options else None
         for cand in exact:
             if best is None or sign * cand.temperature >= sign * best.temperature:
                 best = cand  # exact data wins ties
@@ -2597,14 +2617,191 @@ def _find_extremes(model: PlateSeries, sets: list[_Samples],
         chosen.append(best)
         return Location(best.temperature, describe(best.x, best.y, w, h), (best.x, best.y))
 
-    body = list(zip(found[:nbody], seeds[:nbody], strict=True))
-    hottest = pick(1.0, [f for f, s in body if s.sign > 0] + values, data)
-    coldest = pick(-1.0, [f for f, s in body if s.sign < 0] + values, data)
+    body = list(zip(found[:nbody], cands.signs, strict=True))
+    hottest = pick(1.0, [f for f, s in body if s > 0] + values, cands.data)
+    coldest = pick(-1.0, [f for f, s in body if s < 0] + values, cands.data)
     scopes = [Scope(f"{name} edge", pick(1.0, [found[nbody + 2 * i]], []),
                     pick(-1.0, [found[nbody + 2 * i + 1]], []))
-              for i, name in enumerate(exposed)]
+              for i, name in enumerate(cands.exposed)]
     return _Extremes(hottest, coldest, scopes, max([c.bound for c in chosen] + [0.0]),
                      max([c.terms for c in chosen] + [0]))
+
+
+def _find_extremes(model: PlateSeries, sets: list[_Samples],
+                   reported: list[tuple[_Array, _Array, _Array]], surfaces: bool) -> _Extremes:
+    """Hottest and coldest over the plate, and per convection edge when `surfaces`: the best
+    samples refined locally, every reported value and the exact fixed-temperature data."""
+    return _pick_extremes(model, _refined_candidates(model, sets, surfaces), reported)
+
+
+#: Plate definitions whose series model, edge flows and refined extremes are kept per process
+#: (`CORES`). A light request (a few points) then costs little more than evaluating its
+#: points when the same plate is asked again, as a spreadsheet does with one cell per point.
+CORE_CACHE_SIZE = 32
+#: ... and at most this many bytes of mode tables and samples among them (a typical entry holds
+#: 0.1-0.3 MB; one with points very close to a data edge up to a few MB; one larger than this
+#: alone is not kept).
+CORE_CACHE_BYTES = 64 * 2**20
+#: Output grid sizes per kept definition whose refined extremes are kept too.
+_GRID_CANDIDATES = 4
+
+
+def definition_of(problem: PlateProblem) -> PlateProblem:
+    """The part of a problem that fixes its solution: without the output points, grid and
+    limits (the limits' values; whether convection edges get their own scope is asked of
+    `PlateCore.candidates`)."""
+    return replace(problem, points=(), grid=None, limits=Limits())
+
+
+def _nbytes(obj: object) -> int:
+    """Bytes of the numpy arrays held in nested tuples, lists and dicts."""
+    if isinstance(obj, np.ndarray):
+        return int(obj.nbytes)
+    if isinstance(obj, tuple | list):
+        return sum(_nbytes(v) for v in obj)
+    if isinstance(obj, dict):
+        return sum(_nbytes(v) for v in obj.values())
+    return 0
+
+
+class PlateCore:
+    """What a series solve computes before it looks at the output points: the model, the edge
+    heat flows, and the samples and refined candidates for the extremes (with no output grid,
+    and for the last few output grid sizes).
+
+    Built once per plate definition and kept in `CORES`. The model's mode tables grow as
+    requests need more terms (bounded by max_terms); results do not depend on that history,
+    because each evaluation sums exactly the terms its truncation rule chooses. Not meant for
+    concurrent use from several threads (the service's sync workers serve one request at a time).
+    """
+
+    def __init__(self, definition: PlateProblem) -> None:
+        self.model = PlateSeries(definition)
+        # flows first: their mode tables (256 terms of every series, more for slow ones) then
+        # serve the evaluations
+        self.flows = self.model.edge_heat_flows()
+        self._samples: list[_Samples] | None = None
+        self._candidates: dict[bool, _Candidates] = {}
+        self._grid_candidates: dict[tuple[int, int, bool], _Candidates] = {}
+        self._measured: tuple[tuple[int | bool, ...], int] = ((), 0)
+
+    def samples(self) -> list[_Samples]:
+        """Where the extremes can lie when no fine output grid is asked: the flux and
+        convection edges without generation (`_sample_lines`), else a square sample grid."""
+        if self._samples is None:
+            model = self.model
+            p = model.problem
+            if p.generation == 0.0:
+                lines = _sample_lines(model)
+                xs = [np.tile(gx, gy.size) for gx, gy in lines]
+                ys = [np.repeat(gy, gx.size) for gx, gy in lines]
+                temp = (model._evaluate(np.concatenate(xs), np.concatenate(ys), None)[0]
+                        if lines else np.zeros(0))
+                self._samples, start = [], 0
+                for gx, gy in lines:
+                    size = gx.size * gy.size
+                    self._samples.append(
+                        _Samples(gx, gy, temp[start:start + size].reshape(gy.size, gx.size)))
+                    start += size
+            else:
+                sx = np.linspace(0.0, p.width, EXTREMES_SAMPLES)
+                sy = np.linspace(0.0, p.height, EXTREMES_SAMPLES)
+                self._samples = [_Samples(sx, sy, model._grid(sx, sy).temp)]
+        return self._samples
+
+    def nbytes(self) -> int:
+        """Bytes of the tables and samples held (the model's stacked modes and each series'
+        own tables grow as requests need more terms: measured again only when one was added)."""
+        model = self.model
+        shape = (len(model._stacks), self._samples is None,
+                 *(len(s._tables) for s in model.series))
+        if shape != self._measured[0]:
+            size = (_nbytes(list(model._stacks.values())) + _nbytes(self._samples or [])
+                    + sum(_nbytes(list(s._tables.values())) for s in model.series))
+            self._measured = (shape, size)
+        return self._measured[1]
+
+    def grid_candidates(self, gx: _Array, gy: _Array, temp: _Array,
+                        surfaces: bool) -> _Candidates:
+        """Refined extremes for an output grid (gx, gy) with temperatures `temp` (a fine grid
+        serves as the samples; a coarse one joins `samples`), kept for the last
+        `_GRID_CANDIDATES` grid sizes."""
+        key = (gx.size, gy.size, surfaces)
+        hit = self._grid_candidates.pop(key, None)
+        if hit is None:
+            here = [_Samples(gx, gy, temp)]
+            if min(gx.size, gy.size) >= EXTREMES_SAMPLES:
+                sets = here
+            else:  # the order decides ties between equal samples
+                sets = (self.samples() + here if self.model.problem.generation == 0.0
+                        else here + self.samples())
+            hit = _refined_candidates(self.model, sets, surfaces)
+        self._grid_candidates[key] = hit  # most recent last
+        while len(self._grid_candidates) > _GRID_CANDIDATES:
+            del self._grid_candidates[next(iter(self._grid_candidates))]
+        return hit
+
+    def candidates(self, surfaces: bool) -> _Candidates:
+        """Refined extremes of `samples` (with a scope per convection edge when `surfaces`)."""
+        if surfaces not in self._candidates:
+            self._candidates[surfaces] = _refined_candidates(self.model, self.samples(), surfaces)
+        return self._candidates[surfaces]
+
+
+class CoreCache:
+    """Least recently used `PlateCore`s by definition: at most `entries` of them holding at
+    most `max_bytes` of tables. Sizes are taken again after every use, since a core's tables
+    grow when a request needs more terms."""
+
+    def __init__(self, entries: int, max_bytes: int) -> None:
+        self.entries = entries
+        self.max_bytes = max_bytes
+        # a plain dict keeps insertion order (least recently used first) and, unlike
+        # OrderedDict, iterates its values without hashing every key again (a definition's
+        # hash walks all its fields)
+        self._cores: dict[PlateProblem, tuple[PlateCore, int]] = {}
+        self._bytes = 0
+        self.hits = 0
+        self.misses = 0
+
+    def get(self, definition: PlateProblem) -> PlateCore:
+        """The core of `definition`, built (and possibly raising) when not kept."""
+        kept = self._cores.pop(definition, None)
+        if kept is not None:
+            self._cores[definition] = kept  # now the most recently used
+            self.hits += 1
+            return kept[0]
+        self.misses += 1
+        core = PlateCore(definition)
+        self._cores[definition] = (core, 0)
+        return core
+
+    def settle(self, definition: PlateProblem) -> None:
+        """Measure `definition`'s core after a use, then drop the least recently used cores
+        until both bounds hold (the core itself too, when it alone is over `max_bytes`)."""
+        kept = self._cores.get(definition)
+        if kept is not None:
+            size = kept[0].nbytes()
+            self._bytes += size - kept[1]
+            self._cores[definition] = (kept[0], size)
+        while self._cores and (len(self._cores) > self.entries or self._bytes > self.max_bytes):
+            oldest = next(iter(self._cores))
+            self._bytes -= self._cores.pop(oldest)[1]
+
+    def nbytes(self) -> int:
+        return self._bytes
+
+    def __len__(self) -> int:
+        return len(self._cores)
+
+    def clear(self) -> None:
+        self._cores.clear()
+        self._bytes = 0
+        self.hits = self.misses = 0
+
+
+#: The process's cores (see `CORE_CACHE_SIZE`; `CoreCache.clear` empties it).
+CORES = CoreCache(CORE_CACHE_SIZE, CORE_CACHE_BYTES)
 
 
 # =========================================================================== entry points
@@ -2681,40 +2878,37 @@ def solve_plate(problem: PlateProblem) -> PlateResult:
     rectangular coordinates and the eigenfunctions and eigenvalues for the nine combinations of
     end conditions (from memory).
     """
-    model = PlateSeries(problem)
+    _validate(problem)  # the points and grid; the rest again in the definition's model
+    definition = definition_of(problem)
+    core = CORES.get(definition)
+    try:
+        return _solve_with(problem, core)
+    finally:
+        CORES.settle(definition)
+
+
+def _solve_with(problem: PlateProblem, core: PlateCore) -> PlateResult:
+    """`solve_plate` for a problem whose definition's core is given."""
     p = problem
+    model, flows = core.model, core.flows
     w, h = p.width, p.height
     warnings: list[str] = []
-
-    # flows first: their mode tables (256 terms of every series, more for slow ones) then
-    # serve the evaluations below
-    flows = model.edge_heat_flows()
 
     pts = np.asarray(p.points, dtype=float).reshape(-1, 2)
     pts = np.array((np.clip(pts[:, 0], 0.0, w), np.clip(pts[:, 1], 0.0, h))).T.reshape(-1, 2)
     npts = pts.shape[0]
-    # where the extremes can lie (see `_sample_lines`); a fine output grid serves instead
-    fine_grid = p.grid is not None and min(p.grid) >= EXTREMES_SAMPLES
-    lines = _sample_lines(model) if p.generation == 0.0 and not fine_grid else []
-    meshes = [(np.tile(gx_l, gy_l.size).reshape(gy_l.size, gx_l.size),
-               np.repeat(gy_l, gx_l.size).reshape(gy_l.size, gx_l.size)) for gx_l, gy_l in lines]
-    # one pass for the points and the sample lines, terms chosen per point
-    temp, err, terms = np.zeros(0), np.zeros(0), np.zeros((0, 0), int)
-    if npts or meshes:
-        temp, err, terms = model._evaluate(
-            np.concatenate([pts[:, 0]] + [m[0].ravel() for m in meshes]),
-            np.concatenate([pts[:, 1]] + [m[1].ravel() for m in meshes]), None)
-    point_t, point_err = temp[:npts], err[:npts]
-    most = int(terms[:, :npts].max(initial=0))
+    point_t, point_err = np.zeros(0), np.zeros(0)
+    most = 0
+    if npts:
+        point_t, point_err, terms = model._evaluate(pts[:, 0], pts[:, 1], None)
+        most = int(terms.max(initial=0))
     errors = [float(point_err.max(initial=0.0))]
     reported = [(pts[:, 0], pts[:, 1], point_t)]
-    sets: list[_Samples] = []
-    start = npts
-    for (gx_l, gy_l), m in zip(lines, meshes, strict=True):
-        sets.append(_Samples(gx_l, gy_l, temp[start:start + m[0].size].reshape(m[0].shape)))
-        start += m[0].size
+    surfaces = p.limits.max_surface_temperature is not None
     gx = gy = grid_t = None
-    if p.grid is not None:
+    if p.grid is None:
+        cands = core.candidates(surfaces)
+    else:
         gx = np.linspace(0.0, w, int(p.grid[0]))
         gy = np.linspace(0.0, h, int(p.grid[1]))
         grid = model._grid(gx, gy)
@@ -2723,12 +2917,8 @@ def solve_plate(problem: PlateProblem) -> PlateResult:
         most = max(most, grid.most)
         xx, yy = np.meshgrid(gx, gy)
         reported.append((xx.ravel(), yy.ravel(), grid_t.ravel()))
-        sets.append(_Samples(gx, gy, grid_t))
-    if p.generation != 0.0 and not fine_grid:
-        sx = np.linspace(0.0, w, EXTREMES_SAMPLES)
-        sy = np.linspace(0.0, h, EXTREMES_SAMPLES)
-        sets.append(_Samples(sx, sy, model._grid(sx, sy).temp))
-    ext = _find_extremes(model, sets, reported, p.limits.max_surface_temperature is not None)
+        cands = core.grid_candidates(gx, gy, grid_t, surfaces)
+    ext = _pick_extremes(model, cands, reported)
     errors.append(ext.error)
     most = max(most, ext.most)
     error_estimate = max(errors)

@@ -721,3 +721,85 @@ def test_reported_extremes_bound_a_dense_boundary_sampling(problem: PlateProblem
                                rtol=0.0, atol=slack)
     np.testing.assert_allclose(min(r.coldest.temperature, dense.min()), r.coldest.temperature,
                                rtol=0.0, atol=slack)
+
+
+# ---------------------------------------------------------------- the per-definition cache
+
+
+def _fingerprint(result: plate.PlateResult) -> tuple:
+    grid = None if result.grid_temperature is None else result.grid_temperature.tolist()
+    return (result.point_temperatures.tolist(), grid, result.edge_heat_flow, result.hottest,
+            result.coldest, result.convergence, result.safety, result.warnings,
+            result.energy_balance)
+
+
+def _with(problem: PlateProblem, **changes) -> PlateProblem:
+    return dataclasses.replace(problem, **changes)
+
+
+def test_cached_definitions_answer_as_a_fresh_solve_whatever_was_asked_before() -> None:
+    # the reference is the same solver with an empty cache: only the history differs
+    # with generation (extremes sampled on a square grid) and without (along the edges)
+    light = _with(MIXED, points=((0.03, 0.04), (0.1, 0.01)),
+                  limits=Limits(max_surface_temperature=60.0))
+    near_edges = _with(MIXED, points=tuple((x, 0.999 * MIXED.height) for x in (0.01, 0.05, 0.1)))
+    coarse = _with(MIXED, grid=(5, 7))
+    fine = _with(MIXED, grid=(41, 37))
+    example = _with(EXAMPLE, limits=Limits(max_surface_temperature=60.0))
+    example_near = _with(EXAMPLE, points=((0.3, 0.9999), (0.59, 0.5)))
+    example_grid = _with(EXAMPLE, grid=(9, 5))
+    problems = (light, near_edges, coarse, fine, example, example_near, example_grid)
+    fresh = {}
+    for problem in problems:
+        plate.CORES.clear()
+        fresh[problem] = _fingerprint(solve_plate(problem))
+    plate.CORES.clear()
+    for problem in (near_edges, fine, light, coarse, light, fine, near_edges, example_near,
+                    example_grid, example, example_near, example_grid, example):
+        result = _fingerprint(solve_plate(problem))
+        # points, flows, extremes, safety: identical; grids: equal up to rounding (a longer
+        # mode table from an earlier request changes the blocking of the matrix products)
+        assert result[0] == fresh[problem][0]
+        assert result[2:] == fresh[problem][2:]
+        if result[1] is not None:
+            np.testing.assert_allclose(result[1], fresh[problem][1], rtol=1e-13, atol=1e-12)
+    assert plate.CORES.hits >= 11
+
+
+def test_the_cache_keys_on_the_definition_only_and_is_bounded() -> None:
+    plate.CORES.clear()
+    solve_plate(_with(MIXED, points=((0.1, 0.01),)))
+    solve_plate(_with(MIXED, points=((0.02, 0.05),), grid=(3, 3),
+                      limits=Limits(max_temperature=500.0)))
+    assert (plate.CORES.hits, plate.CORES.misses) == (1, 1)
+    for k in range(plate.CORE_CACHE_SIZE + 5):  # a new conductivity is a new definition
+        solve_plate(_with(MIXED, conductivity=10.0 + k, points=((0.1, 0.01),)))
+    assert len(plate.CORES) == plate.CORE_CACHE_SIZE
+    assert 0 < plate.CORES.nbytes() <= plate.CORE_CACHE_BYTES
+
+
+def test_the_cache_drops_the_oldest_cores_to_stay_within_its_byte_bound() -> None:
+    cache = plate.CoreCache(entries=8, max_bytes=600_000)
+    light = plate.definition_of(MIXED)
+    near = plate.definition_of(EXAMPLE)
+    cache.get(light)
+    cache.settle(light)
+    kept = cache.nbytes()
+    assert 0 < kept < 600_000 and len(cache) == 1
+    core = cache.get(near)
+    # a point 10 um from the heated edge needs far longer mode tables (about 2 MB)
+    plate._solve_with(dataclasses.replace(EXAMPLE, points=((0.3, 1e-5),)), core)
+    cache.settle(near)
+    assert len(cache) == 0 and cache.nbytes() == 0  # over the bound alone: nothing kept
+    cache.get(light)
+    cache.settle(light)
+    assert cache.nbytes() == kept
+
+
+def test_ill_posed_definitions_are_not_kept() -> None:
+    plate.CORES.clear()
+    balanced = PlateProblem(1.0, 1.0, 10.0, INSULATED, INSULATED, INSULATED, INSULATED)
+    for _ in range(2):
+        with pytest.raises(IllPosedError):
+            solve_plate(balanced)
+    assert len(plate.CORES) == 0
