@@ -67,11 +67,20 @@ def _memory_dir() -> str | None:
 
 wsgi_app = "service.app:create_app()"
 bind = os.environ.get("CONDUCTION_BIND", "127.0.0.1:8000")
-# Plain sync workers, one per core, behaved best here (threaded workers with keep-alive
-# sometimes piled every connection onto one worker). The per-request time budget also needs
-# each request on a worker's main thread (see service/ops/deadline.py).
+# Sync workers, one per core, behaved best here (threaded workers with keep-alive sometimes
+# piled every connection onto one worker). The per-request time budget also needs each request
+# on a worker's main thread (see service/ops/deadline.py).
 workers = int(os.environ.get("CONDUCTION_WORKERS") or available_cpus())
-worker_class = "sync"
+# gunicorn's sync worker with one step in front (service/ops/worker.py): a request is served
+# only once it has arrived completely, so slow or half-sent requests wait in the worker's
+# selector loop instead of holding the worker. Its bounds, read by the worker class itself:
+# CONDUCTION_REQUEST_READ_SECONDS (10 s from connect to a complete request, then 408),
+# CONDUCTION_PENDING_CONNECTIONS (200 incomplete requests per worker) and
+# CONDUCTION_PENDING_BYTES (32 MiB buffered per worker); bodies are bounded by
+# CONDUCTION_MAX_BODY_BYTES as in the app. gunicorn imports the class by this dotted path
+# in the master, after it has put the working directory on sys.path (the container installs
+# the package), and the module imports only the standard library and gunicorn there.
+worker_class = "service.ops.worker.RequestBufferingWorker"
 # Hard backstop behind the per-request time budget (CONDUCTION_TIME_BUDGET_SECONDS, 25 s by
 # default): a worker silent for this long is killed. Keep it well above the budget.
 timeout = int(os.environ.get("CONDUCTION_WORKER_TIMEOUT", "60"))

@@ -60,7 +60,9 @@ def test_every_name_is_a_gunicorn_setting(monkeypatch):
 def test_settings_fit_the_time_budget_and_the_platform(monkeypatch):
     conf = load_conf(monkeypatch)
     budget = DEFAULTS["TIME_BUDGET_SECONDS"]
-    assert conf["worker_class"] == "sync"
+    # sync handling behind a request buffer (service/ops/worker.py): one request at a time,
+    # on the main thread, as the time budget needs
+    assert conf["worker_class"] == "service.ops.worker.RequestBufferingWorker"
     assert conf["timeout"] >= 2 * budget  # the hard backstop stays behind the soft budget
     assert conf["graceful_timeout"] >= budget  # an in-flight request may finish
     assert conf["workers"] == conf["available_cpus"]() >= 1
