@@ -2692,22 +2692,32 @@ class PlateCore:
             model = self.model
             p = model.problem
             if p.generation == 0.0:
-                lines = _sample_lines(model)
-                xs = [np.tile(gx, gy.size) for gx, gy in lines]
-                ys = [np.repeat(gy, gx.size) for gx, gy in lines]
-                temp = (model._evaluate(np.concatenate(xs), np.concatenate(ys), None)[0]
-                        if lines else np.zeros(0))
-                self._samples, start = [], 0
-                for gx, gy in lines:
-                    size = gx.size * gy.size
-                    self._samples.append(
-                        _Samples(gx, gy, temp[start:start + size].reshape(gy.size, gx.size)))
-                    start += size
+                self.evaluate_points(np.zeros(0), np.zeros(0))
             else:
                 sx = np.linspace(0.0, p.width, EXTREMES_SAMPLES)
                 sy = np.linspace(0.0, p.height, EXTREMES_SAMPLES)
                 self._samples = [_Samples(sx, sy, model._grid(sx, sy).temp)]
+        assert self._samples is not None
         return self._samples
+
+    def evaluate_points(self, x: _Array, y: _Array) -> tuple[_Array, _Array, _Array]:
+        """Temperatures, bounds and terms at points (`PlateSeries._evaluate`). Without
+        generation, the first call also evaluates the edge samples of `samples`, in the same
+        pass (one pass over the series costs less than two)."""
+        model = self.model
+        if self._samples is not None or model.problem.generation != 0.0:
+            return model._evaluate(x, y, None)
+        lines = _sample_lines(model)
+        xs = [x] + [np.tile(gx, gy.size) for gx, gy in lines]
+        ys = [y] + [np.repeat(gy, gx.size) for gx, gy in lines]
+        temp, err, terms = model._evaluate(np.concatenate(xs), np.concatenate(ys), None)
+        self._samples, start = [], x.size
+        for gx, gy in lines:
+            size = gx.size * gy.size
+            self._samples.append(
+                _Samples(gx, gy, temp[start:start + size].reshape(gy.size, gx.size)))
+            start += size
+        return temp[:x.size], err[:x.size], terms[:, :x.size]
 
     def nbytes(self) -> int:
         """Bytes of the tables and samples held (the model's stacked modes and each series'
@@ -2900,7 +2910,7 @@ def _solve_with(problem: PlateProblem, core: PlateCore) -> PlateResult:
     point_t, point_err = np.zeros(0), np.zeros(0)
     most = 0
     if npts:
-        point_t, point_err, terms = model._evaluate(pts[:, 0], pts[:, 1], None)
+        point_t, point_err, terms = core.evaluate_points(pts[:, 0], pts[:, 1])
         most = int(terms.max(initial=0))
     errors = [float(point_err.max(initial=0.0))]
     reported = [(pts[:, 0], pts[:, 1], point_t)]
