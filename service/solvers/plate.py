@@ -2627,13 +2627,6 @@ def _pick_extremes(model: PlateSeries, cands: _Candidates,
                      max([c.terms for c in chosen] + [0]))
 
 
-def _find_extremes(model: PlateSeries, sets: list[_Samples],
-                   reported: list[tuple[_Array, _Array, _Array]], surfaces: bool) -> _Extremes:
-    """Hottest and coldest over the plate, and per convection edge when `surfaces`: the best
-    samples refined locally, every reported value and the exact fixed-temperature data."""
-    return _pick_extremes(model, _refined_candidates(model, sets, surfaces), reported)
-
-
 #: Plate definitions whose series model, edge flows and refined extremes are kept per process
 #: (`CORES`). A light request (a few points) then costs little more than evaluating its
 #: points when the same plate is asked again, as a spreadsheet does with one cell per point.
@@ -2671,8 +2664,10 @@ class PlateCore:
 
     Built once per plate definition and kept in `CORES`. The model's mode tables grow as
     requests need more terms (bounded by max_terms); results do not depend on that history,
-    because each evaluation sums exactly the terms its truncation rule chooses. Not meant for
-    concurrent use from several threads (the service's sync workers serve one request at a time).
+    because each evaluation sums exactly the terms its truncation rule chooses. Every table,
+    sample set and candidate list is stored in one assignment once complete, so a request
+    interrupted by the time budget leaves nothing half-built. Not meant for concurrent use from
+    several threads (the service's sync workers serve one request at a time).
     """
 
     def __init__(self, definition: PlateProblem) -> None:
@@ -2711,12 +2706,13 @@ class PlateCore:
         xs = [x] + [np.tile(gx, gy.size) for gx, gy in lines]
         ys = [y] + [np.repeat(gy, gx.size) for gx, gy in lines]
         temp, err, terms = model._evaluate(np.concatenate(xs), np.concatenate(ys), None)
-        self._samples, start = [], x.size
+        samples, start = [], x.size
         for gx, gy in lines:
             size = gx.size * gy.size
-            self._samples.append(
-                _Samples(gx, gy, temp[start:start + size].reshape(gy.size, gx.size)))
+            samples.append(_Samples(gx, gy, temp[start:start + size].reshape(gy.size, gx.size)))
             start += size
+        # kept only when complete: the time budget may interrupt a request anywhere
+        self._samples = samples
         return temp[:x.size], err[:x.size], terms[:, :x.size]
 
     def nbytes(self) -> int:
@@ -2791,9 +2787,10 @@ class CoreCache:
         until both bounds hold (the core itself too, when it alone is over `max_bytes`)."""
         kept = self._cores.get(definition)
         if kept is not None:
-            size = kept[0].nbytes()
-            self._bytes += size - kept[1]
-            self._cores[definition] = (kept[0], size)
+            self._cores[definition] = (kept[0], kept[0].nbytes())
+        # summed afresh (at most `entries` values), so a use interrupted by the time budget
+        # cannot leave the total wrong
+        self._bytes = sum(size for _, size in self._cores.values())
         while self._cores and (len(self._cores) > self.entries or self._bytes > self.max_bytes):
             oldest = next(iter(self._cores))
             self._bytes -= self._cores.pop(oldest)[1]
