@@ -803,3 +803,26 @@ def test_ill_posed_definitions_are_not_kept() -> None:
         with pytest.raises(IllPosedError):
             solve_plate(balanced)
     assert len(plate.CORES) == 0
+
+
+def test_a_solve_interrupted_midway_leaves_the_kept_plate_whole(monkeypatch) -> None:
+    # the time budget raises anywhere in a request; here the second edge-sample set fails
+    plate.CORES.clear()
+    problem = _with(EXAMPLE, top=Edge("convection", film_coefficient=30.0, ambient=20.0))
+    fresh = _fingerprint(solve_plate(problem))
+    plate.CORES.clear()
+    made = []
+    real = plate._Samples
+
+    def failing(*args):
+        made.append(args)
+        if len(made) == 2:
+            raise KeyboardInterrupt("interrupted")
+        return real(*args)
+
+    monkeypatch.setattr(plate, "_Samples", failing)
+    with pytest.raises(KeyboardInterrupt):
+        solve_plate(problem)
+    monkeypatch.setattr(plate, "_Samples", real)
+    assert len(plate.CORES) == 1  # kept, without the half-made samples
+    assert _fingerprint(solve_plate(problem)) == fresh
