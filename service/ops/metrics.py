@@ -20,6 +20,24 @@ Metrics (all prefixed `conduction_`):
 - `series_terms{family}`, `grid_cells{family}`, `solver_iterations{family}`: histograms of the
   Convergence record's `terms`, `cells` and `iterations` where the solver reports them.
 - `time_budget_exceeded_total{route}`, `auth_failures_total{reason}`.
+- `connections_dropped_total{reason}`: connections the request-buffering worker
+  (service/ops/worker.py) closed or answered itself instead of serving, per `DROP_REASONS`:
+  `expired` (no complete request within CONDUCTION_REQUEST_READ_SECONDS: a 408, or a silent
+  close when nothing was sent), `evicted` (closed, oldest first, to stay within
+  CONDUCTION_PENDING_CONNECTIONS or CONDUCTION_PENDING_BYTES, or when accept() ran out of file
+  descriptors), `too_large` (a chunked body past CONDUCTION_MAX_BODY_BYTES, answered 413 by
+  the worker) and `line_too_long` (a request line past limit_request_line, answered 414).
+  Not counted here: clients that hang up before finishing (their own choice), connections
+  closed because the worker is stopping, and refusals
+  the app or gunicorn's parser answer (a declared Content-Length over the limit gets the
+  app's 413 and shows in `http_requests_total`). Incremented by the worker only when it
+  drops a connection: served requests cost nothing.
+- `plate_models_total{result}`: plate solves by whether the plate's series model was `kept`
+  (found in the worker's cache of plate models, `service.solvers.plate.CORES`) or `built`;
+  batch and sweep items count one each, like requests. Grid-method solves use no model and
+  are not counted.
+- `plate_model_bytes`: bytes held by the kept plate models, summed over live workers (each
+  worker's value is set after each of its plate solves).
 - `build_info{version}`: always 1.
 
 The metric objects are module-level because a Prometheus registry is process-wide by design:
@@ -88,6 +106,20 @@ TIME_BUDGET_EXCEEDED = Counter(
     "Requests stopped because they used up the per-request time budget.", ("route",))
 AUTH_FAILURES = Counter(
     "conduction_auth_failures_total", "Requests refused by the API-key check.", ("reason",))
+#: Why the worker dropped a connection (the only values of `connections_dropped_total`'s
+#: `reason`; see the module docstring).
+DROP_REASONS = ("expired", "evicted", "too_large", "line_too_long")
+CONNECTIONS_DROPPED = Counter(
+    "conduction_connections_dropped_total",
+    "Connections the request-buffering worker closed or answered itself instead of serving.",
+    ("reason",))
+PLATE_MODELS = Counter(
+    "conduction_plate_models_total",
+    "Plate solves by whether the plate's series model was kept from an earlier request or "
+    "built.", ("result",))
+PLATE_MODEL_BYTES = Gauge(
+    "conduction_plate_model_bytes", "Bytes held by the kept plate series models.",
+    multiprocess_mode="livesum")
 BUILD_INFO = Gauge(
     "conduction_build_info", "Service version (value always 1).", ("version",),
     multiprocess_mode="max")
@@ -110,6 +142,27 @@ def observe_solve(kind: str, method: str, convergence: Convergence, seconds: flo
         GRID_CELLS.labels(kind).observe(convergence.cells)
     if convergence.iterations is not None:
         SOLVER_ITERATIONS.labels(kind).observe(convergence.iterations)
+
+
+# bound once: a labelled child costs a dictionary look-up and a lock per `labels()` call
+_PLATE_MODELS_KEPT = PLATE_MODELS.labels("kept")
+_PLATE_MODELS_BUILT = PLATE_MODELS.labels("built")
+
+
+def observe_plate_models(kept: int, built: int, nbytes: int) -> None:
+    """Record plate models kept and built by one solve, and the bytes the cache now holds
+    (counts below 1, e.g. after the cache was cleared mid-solve, are not recorded)."""
+    if kept > 0:
+        _PLATE_MODELS_KEPT.inc(kept)
+    if built > 0:
+        _PLATE_MODELS_BUILT.inc(built)
+    PLATE_MODEL_BYTES.set(nbytes)
+
+
+def connection_drop_counters() -> dict[str, Any]:
+    """reason -> its child of `connections_dropped_total`, for the worker (every reason is
+    created at once, so each series is exported from 0 before the first drop)."""
+    return {reason: CONNECTIONS_DROPPED.labels(reason) for reason in DROP_REASONS}
 
 
 def exposition() -> tuple[bytes, str]:

@@ -42,9 +42,17 @@ CONDUCTION_REQUEST_READ_SECONDS (10), CONDUCTION_PENDING_CONNECTIONS (200),
 CONDUCTION_PENDING_BYTES (33554432), and the body limit CONDUCTION_MAX_BODY_BYTES that the app
 also uses (service/config.py).
 
+Every connection dropped instead of served is counted in the Prometheus counter
+`conduction_connections_dropped_total{reason}` (service/ops/metrics.py: `expired`, `evicted`,
+`too_large`, `line_too_long`) and summarised in the log at most once a minute; served requests
+cost nothing extra.
+
 The gunicorn master imports this module by its dotted path (deploy/gunicorn.conf.py,
 `worker_class`), so at module level it imports only the standard library and gunicorn: the
-service's config and problem titles are imported in the worker, after the fork.
+service's config, problem titles and metrics are imported in the worker, after the fork
+(prometheus-client chooses its multi-process storage when imported, from
+PROMETHEUS_MULTIPROC_DIR, which the master sets before forking). Without the metrics (they
+cannot be imported) the worker runs as before and says so once in the log.
 """
 
 from __future__ import annotations
@@ -492,8 +500,9 @@ class RequestBufferingWorker(SyncWorker):
         self._lingering: OrderedDict[int, _Lingering] = OrderedDict()
         self._ready: deque[_Pending] = deque()
         self._buffered = 0
-        self._dropped = {"expired": 0, "evicted": 0}
+        self._dropped = {"expired": 0, "evicted": 0, "too_large": 0, "line_too_long": 0}
         self._last_report = time.monotonic()
+        self._drop_counters = self._load_drop_counters()
         self._selector = selectors.DefaultSelector()
         for listener in self.sockets:
             listener.setblocking(False)
@@ -509,6 +518,30 @@ class RequestBufferingWorker(SyncWorker):
             for lingering in list(self._lingering.values()):
                 self._end_linger(lingering)
             self._selector.close()
+
+    def _load_drop_counters(self) -> dict[str, Any]:
+        """The children of `conduction_connections_dropped_total` by reason, imported here, in
+        the worker (see the module docstring); empty when the metrics cannot be loaded."""
+        try:
+            from service.ops.metrics import connection_drop_counters
+
+            return connection_drop_counters()
+        except Exception as exc:  # the worker must serve without its metrics
+            self.log.warning("connection drops are not counted in the metrics: %s: %s",
+                             type(exc).__name__, exc)
+            return {}
+
+    def _count_drop(self, reason: str) -> None:
+        """Count one dropped connection for the log summary and the metrics."""
+        self._dropped[reason] += 1
+        counter = self._drop_counters.get(reason)
+        if counter is not None:
+            try:
+                counter.inc()
+            except Exception as exc:  # e.g. the metrics directory is full: keep serving
+                self.log.warning("connection drops are no longer counted in the metrics: "
+                                 "%s: %s", type(exc).__name__, exc)
+                self._drop_counters = {}
 
     def _loop(self) -> None:
         timeout = self.timeout or 0.5
@@ -618,11 +651,13 @@ class RequestBufferingWorker(SyncWorker):
             self._watch(pending)
             self._limit_buffered(pending)
         elif verdict is Verdict.TOO_LARGE:
+            self._count_drop("too_large")
             self._forget(pending)
             self._answer(pending.sock, 413, "/problems/too-large",
                          f"Request body exceeds the limit of "
                          f"{self.settings.max_body_bytes} bytes.")
         elif verdict is Verdict.LINE_TOO_LONG:
+            self._count_drop("line_too_long")
             self._forget(pending)
             self._answer(pending.sock, 414, "/problems/bad-request",
                          f"The request line is longer than the limit of {self.line_limit} "
@@ -651,7 +686,7 @@ class RequestBufferingWorker(SyncWorker):
 
     def _evict_oldest(self) -> None:
         if self._pending:
-            self._dropped["evicted"] += 1
+            self._count_drop("evicted")
             self._drop(next(iter(self._pending.values())))
 
     def _limit_buffered(self, current: _Pending) -> None:
@@ -660,7 +695,7 @@ class RequestBufferingWorker(SyncWorker):
             if self._buffered <= self.settings.pending_bytes:
                 return
             if other is not current:
-                self._dropped["evicted"] += 1
+                self._count_drop("evicted")
                 self._drop(other)
 
     def _expire(self, now: float) -> None:
@@ -668,7 +703,7 @@ class RequestBufferingWorker(SyncWorker):
             pending = next(iter(self._pending.values()))
             if pending.deadline > now:
                 break
-            self._dropped["expired"] += 1
+            self._count_drop("expired")
             self._forget(pending)
             if pending.buffer.data:
                 self._answer(pending.sock, 408, "/problems/bad-request",
@@ -685,10 +720,13 @@ class RequestBufferingWorker(SyncWorker):
     def _report(self, now: float) -> None:
         if now - self._last_report < 60 or not any(self._dropped.values()):
             return
-        self.log.warning("slow clients in the last %.0f s: %d connections closed at the "
-                         "read deadline, %d closed to make room", now - self._last_report,
-                         self._dropped["expired"], self._dropped["evicted"])
-        self._dropped = {"expired": 0, "evicted": 0}
+        self.log.warning("connections dropped in the last %.0f s: %d closed at the "
+                         "read deadline, %d closed to make room, %d chunked bodies over the "
+                         "limit (413), %d request lines over the limit (414)",
+                         now - self._last_report, self._dropped["expired"],
+                         self._dropped["evicted"], self._dropped["too_large"],
+                         self._dropped["line_too_long"])
+        self._dropped = dict.fromkeys(self._dropped, 0)
         self._last_report = now
 
     # answering -----------------------------------------------------------------------------

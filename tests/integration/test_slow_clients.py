@@ -3,7 +3,8 @@
 One server with 2 workers, a short read deadline and a small body limit serves the module.
 Traffic goes to 127.0.0.1 only; every wait is bounded. Timing bounds here are generous
 correctness bounds (a blocked worker would hold a request for the whole worker timeout), not
-speed targets.
+speed targets. The worker's drops are checked in `/metrics` too
+(`conduction_connections_dropped_total`, merged over both workers).
 """
 
 from __future__ import annotations
@@ -21,6 +22,7 @@ import requests
 from tests.conftest import PLATE_PAYLOAD
 from tests.integration.conftest import start_server, stop_server
 from tests.integration.test_faults import _workers
+from tests.integration.test_ops import metric_samples, sample
 
 READ_SECONDS = 1.5
 MAX_BODY = 200_000
@@ -35,6 +37,16 @@ def slow_server():
                                "CONDUCTION_PENDING_CONNECTIONS": str(PENDING)}, workers=2)
     yield proc, base, int(base.rsplit(":", 1)[1])
     stop_server(proc)
+
+
+DROPPED = "conduction_connections_dropped_total"
+
+
+def dropped(base: str) -> dict[str, float]:
+    """reason -> connections dropped so far, over all workers."""
+    samples = metric_samples(base)
+    return {reason: sample(samples, DROPPED, reason=reason)
+            for reason in ("expired", "evicted", "too_large", "line_too_long")}
 
 
 def connect(port: int) -> socket.socket:
@@ -109,6 +121,7 @@ def test_half_sent_requests_do_not_block_other_clients(slow_server):
 
 def test_beyond_the_pending_cap_the_oldest_incomplete_connections_are_closed(slow_server):
     _, base, port = slow_server
+    before = dropped(base)
     opened: list[socket.socket] = []
     try:
         for _ in range(2 * PENDING + 10):
@@ -126,6 +139,7 @@ def test_beyond_the_pending_cap_the_oldest_incomplete_connections_are_closed(slo
                 closed.append(False)
         assert sum(closed) >= 10  # two workers hold at most 2 * PENDING
         assert not any(closed[-10:])  # the newest were kept
+        assert dropped(base)["evicted"] - before["evicted"] >= sum(closed)
     finally:
         for sock in opened:
             sock.close()
@@ -157,6 +171,19 @@ def test_a_half_sent_request_is_answered_408_at_the_read_deadline(slow_server, s
     assert status == 408
     assert problem["type"] == "/problems/bad-request" and problem["status"] == 408
     assert READ_SECONDS - 0.2 < elapsed < READ_SECONDS + 3
+
+
+def test_an_expired_half_sent_request_is_counted_in_the_metrics(slow_server):
+    _, base, port = slow_server
+    before = dropped(base)
+    with connect(port) as sock:
+        sock.sendall(plate_request()[:-1])
+        assert status_and_body(read_all(sock))[0] == 408
+    after = dropped(base)
+    # counted before the 408 is sent, so the scrape after it sees it
+    assert after["expired"] - before["expired"] >= 1
+    assert after["too_large"] == before["too_large"]
+    assert after["line_too_long"] == before["line_too_long"]
 
 
 def test_a_silent_connection_is_closed_at_the_read_deadline_without_an_answer(slow_server):
@@ -229,7 +256,8 @@ def test_a_declared_oversized_body_gets_the_apps_413_without_sending_it(slow_ser
 
 
 def test_an_oversized_chunked_body_gets_a_413_problem_from_the_worker(slow_server):
-    _, _, port = slow_server
+    _, base, port = slow_server
+    before = dropped(base)
     with connect(port) as sock:
         sock.sendall(b"POST /v1/plate HTTP/1.1\r\nHost: t\r\nContent-Type: application/json"
                      b"\r\nTransfer-Encoding: chunked\r\n\r\n%x\r\n" % (MAX_BODY + 1))
@@ -237,6 +265,7 @@ def test_an_oversized_chunked_body_gets_a_413_problem_from_the_worker(slow_serve
     status, problem = status_and_body(raw)
     assert status == 413 and problem["type"] == "/problems/too-large"
     assert problem["detail"] == f"Request body exceeds the limit of {MAX_BODY} bytes."
+    assert dropped(base)["too_large"] - before["too_large"] == 1
 
 
 def test_a_16_kib_request_line_is_served_and_a_longer_one_refused(slow_server):
@@ -250,11 +279,13 @@ def test_a_16_kib_request_line_is_served_and_a_longer_one_refused(slow_server):
     response = requests.get(url, timeout=5)
     assert response.status_code == 200, response.text[:300]
     assert float(response.text) > 0
+    before = dropped(base)
     too_long = requests.get(base + "/healthz?pad=" + "x" * 16384, timeout=5)
     assert too_long.status_code == 414
     assert too_long.headers["Content-Type"] == "application/problem+json"
     assert too_long.json()["detail"].startswith(
         "The request line is longer than the limit of 16384 bytes")
+    assert dropped(base)["line_too_long"] - before["line_too_long"] == 1
 
 
 def test_a_stop_finishes_arriving_requests_within_the_read_deadline_and_no_later():
