@@ -94,6 +94,49 @@ def stages(problem: PlateProblem, repeat: int) -> tuple[float, float, float]:
     return timed(build, repeat)[0], timed(flows, repeat)[0], timed(grid, repeat)[0]
 
 
+def bare_one_hot(n: int, terms: int) -> np.ndarray:
+    """The one-hot square's field on an n x n grid as one matrix product with a fixed number of
+    odd terms (the reference implementation: no per-point truncation, no error bound, no
+    flows, no extremes). T = T0 + (T1 - T0) sum_odd 4/(k pi) sin(k pi x/W) R_k(y), with
+    R_k = sinh(k pi (H - y)/W) / sinh(k pi H/W) written with decaying exponentials only."""
+    w, h = ONE_HOT.width, ONE_HOT.height
+    t1, t0 = ONE_HOT.bottom.value, ONE_HOT.top.value
+    assert t1 is not None and t0 is not None
+    k = np.arange(1, 2 * terms, 2, dtype=float)[:, None]
+    x = np.linspace(0.0, w, n)[None, :]
+    y = np.linspace(0.0, h, n)[None, :]
+    a = k * np.pi / w
+    ratio = np.exp(-a * y) * -np.expm1(-2.0 * a * (h - y)) / -np.expm1(-2.0 * a * h)
+    sines = (4.0 / (k * np.pi)) * np.sin(a * x)
+    return t0 + (t1 - t0) * (ratio.T @ sines)
+
+
+def reference(repeat: int) -> None:
+    """The one-hot 101 x 101 field by the bare matrix product, timed like the solver, with the
+    largest difference from the solver's field away from the hot edge's corners."""
+    problem = dataclasses.replace(ONE_HOT, grid=(101, 101))
+    conv = solve_plate(problem).convergence
+    terms = conv.terms or 1
+    bare_min = timed(lambda _: bare_one_hot(101, terms), repeat)[0]
+
+    def fresh(_: int) -> None:
+        CORES.clear()
+        solve_plate(problem)
+
+    solve_min = timed(fresh, repeat)[0]
+    kept_min = timed(lambda _: solve_plate(problem), repeat)[0]
+    ours = solve_plate(problem).grid_temperature
+    assert ours is not None
+    bare = bare_one_hot(101, terms)
+    inner = (slice(1, None), slice(1, -1))  # rows above the hot edge, columns off the corners
+    diff = float(np.max(np.abs(ours[inner] - bare[inner])))
+    print(f"reference: one-hot 101x101 as one numpy matrix product of {terms} odd terms "
+          f"(no truncation rule, bounds, flows or extremes): {bare_min:.2f} ms; the solver "
+          f"{solve_min:.2f} ms fresh ({solve_min / bare_min:.1f}x), {kept_min:.2f} ms with the "
+          f"plate kept ({kept_min / bare_min:.1f}x); largest difference off the hot edge "
+          f"{diff:.1e} K")
+
+
 def main() -> None:
     parser = argparse.ArgumentParser()
     parser.add_argument("--quick", action="store_true", help="fewer repeats")
@@ -139,6 +182,7 @@ def main() -> None:
         print(f"{name:<24} {grid:>8} {solve_min:>8.2f}ms {solve_med:>6.2f}ms {kept_min:>7.2f}ms "
               f"{build:>5.2f}ms {flows:>5.2f}ms {sum_text:>7} {rest:>5.2f}ms "
               f"{conv.terms:>6} {conv.error_estimate / conv.atol:>9.3f}")
+    reference(repeat=max(3, int(40 * scale)))
     load_after = os.getloadavg()
     print(f"load average after: {load_after[0]:.2f} {load_after[1]:.2f} {load_after[2]:.2f}"
           " (2 cores; figures above ~1 mean other work shared the machine)")
