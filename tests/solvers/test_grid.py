@@ -315,13 +315,17 @@ def test_point_interpolation_exact_for_a_linear_field():
     temp = f(*np.meshgrid(mesh.x, mesh.y))
     tx = f(*np.meshgrid(mesh.x_faces, mesh.y))
     ty = f(*np.meshgrid(mesh.x, mesh.y_faces))
-    pts = np.array([[0.0, 0.0], [0.3, 0.2], [0.1, 0.05], [0.123, 0.077], [0.3, 0.11], [0.05, 0.2]])
-    np.testing.assert_allclose(
-        interpolate_points(mesh, ids, temp, tx, ty, pts),
-        f(pts[:, 0], pts[:, 1]),
-        rtol=0.0,
-        atol=1e-12,
-    )
+    # edges, corners, the zone's corners (vertices where interfaces cross) and inside cells
+    pts = np.array([[0.0, 0.0], [0.3, 0.2], [0.1, 0.05], [0.123, 0.077], [0.3, 0.11], [0.05, 0.2],
+                    [0.2, 0.15], [0.1, 0.15], [0.2, 0.05]])
+    # without conductivities, and with them (the heat balance at junction vertices)
+    for k in (None, np.full((mesh.ny, mesh.nx), 2.5)):
+        np.testing.assert_allclose(
+            interpolate_points(mesh, ids, temp, tx, ty, pts, k),
+            f(pts[:, 0], pts[:, 1]),
+            rtol=0.0,
+            atol=1e-12,
+        )
 
 
 # --------------------------------------------------------------------------------------------

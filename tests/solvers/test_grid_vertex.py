@@ -96,27 +96,6 @@ def test_junction_vertex_exact_in_a_layered_wall(geometry, across):
     assert np.max(np.abs(before - exact)) > 0.5
 
 
-def test_junction_vertex_exact_for_a_linear_field():
-    # faces and cells of T = 3 + 20 x - 7 y, one conductivity in two zones: a linear field
-    # is reproduced exactly (common practice, no source)
-    p = GridProblem(width=0.3, height=0.2, cells=Cells(7, 5), conductivity=1.0,
-                    zones=(Zone("z", (0.1, 0.05, 0.2, 0.15)),),
-                    edges=Edges(top=(Segment("temperature", value=0.0),)))
-    mesh = build_mesh(p)
-    ids = build_materials(p, mesh).ids
-
-    def f(x, y):
-        return 3.0 + 20.0 * x - 7.0 * y
-
-    temp = f(*np.meshgrid(mesh.x, mesh.y))
-    tx = f(*np.meshgrid(mesh.x_faces, mesh.y))
-    ty = f(*np.meshgrid(mesh.x, mesh.y_faces))
-    pts = np.array([[0.1, 0.05], [0.2, 0.15], [0.1, 0.15], [0.2, 0.05], [0.123, 0.077]])
-    k = np.full((mesh.ny, mesh.nx), 2.5)
-    np.testing.assert_allclose(interpolate_points(mesh, ids, temp, tx, ty, pts, k),
-                               f(pts[:, 0], pts[:, 1]), rtol=0.0, atol=1e-12)
-
-
 # --------------------------------------------------------------------------------------------
 # second order at junction vertices of one material (the corners of a marker zone, which only
 # forces grid lines, on a manufactured field)
