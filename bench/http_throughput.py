@@ -12,7 +12,11 @@ The series solver keeps the model of the 32 most recently asked plate definition
   evaluated afresh;
 - "new plate each time": the conductivity is random in every request, so nothing is reused:
   the full cost of a solve;
-- "same request": byte-identical requests (there is no response cache: each is solved).
+- "same request": byte-identical requests. Each worker keeps finished answers
+  (service/api/answers.py), so after its first solve a worker answers these from the kept
+  answer (`meta.reused`);
+- "same request, no-cache": byte-identical requests sent with `Cache-Control: no-cache`, so each
+  is validated, solved (with the kept model) and dumped afresh.
 
     .venv/bin/python bench/http_throughput.py [--seconds 10]
 """
@@ -57,6 +61,7 @@ class Case:
     body: str | None       # JSON text; "@POINTS@" and "@K@" are replaced per request
     new_points: bool = False
     new_plate: bool = False
+    no_cache: bool = False  # send Cache-Control: no-cache (solve afresh, no answer reuse)
 
 
 def _template(extra: dict, points: bool, conductivity: bool) -> str:
@@ -75,8 +80,12 @@ CASES = [
          _template({"points": FIVE}, points=False, conductivity=True), new_plate=True),
     Case("plate, 5 points, same request", "/v1/plate",
          _template({"points": FIVE}, points=False, conductivity=False)),
-    Case("plate, 101x101 grid, same plate", "/v1/plate",
+    Case("plate, 5 points, same request, no-cache", "/v1/plate",
+         _template({"points": FIVE}, points=False, conductivity=False), no_cache=True),
+    Case("plate, 101x101 grid, same request", "/v1/plate",
          _template({"grid": GRID}, points=False, conductivity=False)),
+    Case("plate, 101x101 grid, same request, no-cache", "/v1/plate",
+         _template({"grid": GRID}, points=False, conductivity=False), no_cache=True),
     Case("plate, 101x101 grid, new plate each time", "/v1/plate",
          _template({"grid": GRID}, points=False, conductivity=True), new_plate=True),
     Case("trivial GET /healthz", "/healthz", None),
@@ -112,6 +121,8 @@ function init(args)
 end
 local template = %s
 local path = %s
+local headers = {["Content-Type"] = "application/json"}
+if %s then headers["Cache-Control"] = "no-cache" end
 local function points()
   local out = {}
   for i = 1, 5 do
@@ -123,7 +134,7 @@ request = function()
   local body = template
   if %s then body = body:gsub("@POINTS@", points(), 1) end
   if %s then body = body:gsub("@K@", string.format("%%.9f", 20 + 60 * math.random()), 1) end
-  return wrk.format("POST", path, {["Content-Type"] = "application/json"}, body)
+  return wrk.format("POST", path, headers, body)
 end
 """
 
@@ -131,7 +142,8 @@ end
 def with_wrk(base: str, case: Case, seconds: int, connections: int = 16) -> dict:
     with tempfile.NamedTemporaryFile("w", suffix=".lua", delete=False) as script:
         if case.body is not None:
-            script.write(_LUA % (json.dumps(case.body), json.dumps(case.path), WIDTH, HEIGHT,
+            script.write(_LUA % (json.dumps(case.body), json.dumps(case.path),
+                                 str(case.no_cache).lower(), WIDTH, HEIGHT,
                                  str(case.new_points).lower(), str(case.new_plate).lower()))
     out = subprocess.run(["wrk", "-t2", f"-c{connections}", f"-d{seconds}s", "--latency",
                           "-s", script.name, base + case.path],
@@ -155,6 +167,8 @@ def with_threads(base: str, case: Case, seconds: int, clients: int = 8) -> dict:
         rng = random.Random(seed)
         session = requests.Session()
         headers = {"Content-Type": "application/json"}
+        if case.no_cache:
+            headers["Cache-Control"] = "no-cache"
         while time.monotonic() < stop_at:
             body = fill(case, rng)
             t0 = time.perf_counter()
@@ -195,11 +209,11 @@ def main() -> None:
         check_bodies(base)
         print(f"load generator: {'wrk' if load is with_wrk else 'python threads'}, "
               f"{args.seconds} s per case, 16 connections, 2 sync workers")
-        print(f"{'case':<42} {'req/s':>9} {'p50':>10} {'p99':>10} {'errors':>7}")
+        print(f"{'case':<46} {'req/s':>9} {'p50':>10} {'p99':>10} {'errors':>7}")
         for case in CASES:
             load(base, case, 2)  # warm-up
             r = load(base, case, args.seconds)
-            print(f"{case.name:<42} {r['rps']:>9.0f} {r['p50']:>10} {r['p99']:>10} "
+            print(f"{case.name:<46} {r['rps']:>9.0f} {r['p50']:>10} {r['p99']:>10} "
                   f"{r['errors']:>7}", flush=True)
     finally:
         _server.stop(proc)

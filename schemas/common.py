@@ -155,6 +155,11 @@ class MetaSchema(Schema):
     service_version = fields.String()
     elapsed_ms = Number()
     request_id = fields.String()
+    reused = fields.Boolean(metadata={
+        "description": "True when this worker answered an identical problem (the same text) "
+                       "earlier and this answer was served from it without solving again; "
+                       "elapsed_ms is then this request's own time. Send Cache-Control: "
+                       "no-cache to have it solved afresh."})
 
 
 class SolveResponseSchema(Schema):

@@ -28,6 +28,9 @@ DEFAULTS: dict[str, Any] = {
     "TIME_BUDGET_SECONDS": 25.0,   # per-request time budget, 0 = off (413 beyond it)
     "DRAIN_FILE": "",              # set by deploy/gunicorn.conf.py: exists while draining
     "CORS_ORIGINS": "",            # comma-separated allowed origins for browsers; "*" for any
+    # finished answers kept per worker for identical problems (service/api/answers.py)
+    "ANSWER_CACHE_BYTES": 32 * 1024 * 1024,  # 0 = never reuse an answer
+    "ANSWER_CACHE_ENTRIES": 1024,
     **{f.name.upper(): f.default for f in fields(Budgets)},
 }
 

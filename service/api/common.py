@@ -17,10 +17,16 @@ from flask import Response, current_app, g, request
 from marshmallow import Schema
 
 from schemas.common import ConvergenceSchema, SolveRequest, quantity_kinds
-from schemas.units import CURRENT_OUTPUT_UNITS, DEFAULT_OUTPUT_UNITS, OutputUnits
+from schemas.units import (
+    CURRENT_OUTPUT_UNITS,
+    DEFAULT_OUTPUT_UNITS,
+    OutputUnits,
+    round_significant,
+)
 from service import __version__
-from service.jsonio import loads
-from service.ops.metrics import observe_solve
+from service.api.answers import AnswerCache, AnswerKey
+from service.jsonio import dumps_bytes, loads
+from service.ops.metrics import observe_answer, observe_answer_bytes, observe_solve
 from service.problems import ProblemError
 from service.tables import SEPARATORS, SelectError, flatten, select, text_value, write_csv
 
@@ -62,25 +68,38 @@ FORMATS = {"json": "application/json", "csv": "text/csv", "png": "image/png",
            "text": "text/plain"}
 
 
-def read_json() -> Any:
-    """The request body as JSON: 415 for other content types, 400 for malformed JSON."""
+def _check_json_type() -> None:
+    """415 unless the body is declared as JSON."""
     mimetype = request.mimetype or ""
     if mimetype not in JSON_TYPES and not mimetype.endswith("+json"):
         raise ProblemError("/problems/unsupported-media-type",
                            f"Send the problem as application/json, not {mimetype or 'nothing'}.")
+
+
+def read_json() -> Any:
+    """The request body as JSON: 415 for other content types, 400 for malformed JSON."""
+    _check_json_type()
     return _parse(request.get_data(cache=True), "Request body")
 
 
-def read_payload() -> Any:
-    """POST: the JSON body. GET: the `problem` query parameter (URL-encoded JSON)."""
+def problem_text() -> tuple[bytes, str]:
+    """The problem as sent, unparsed, and what it was sent as (for error messages).
+    POST: the JSON body (415 for other content types). GET: the `problem` query parameter
+    (URL-encoded JSON; 422 when missing)."""
     if request.method == "POST":
-        return read_json()
+        _check_json_type()
+        return request.get_data(cache=True), "Request body"
     text = request.args.get("problem")
     if text is None:
         raise ProblemError("/problems/validation-failed",
                            "A GET solve needs the problem as URL-encoded JSON in ?problem=.",
                            errors={"problem": ["Missing data for required field."]})
-    return _parse(text.encode(), "Query parameter 'problem'")
+    return text.encode(), "Query parameter 'problem'"
+
+
+def read_payload() -> Any:
+    """POST: the JSON body. GET: the `problem` query parameter (URL-encoded JSON)."""
+    return _parse(*problem_text())
 
 
 def _parse(data: bytes, what: str) -> Any:
@@ -179,19 +198,64 @@ def run_solve(family: Family, payload: Any) -> dict[str, Any]:
         "cautions": cautions,
         "meta": {"service_version": __version__,
                  "elapsed_ms": (time.perf_counter() - started) * 1e3,
-                 "request_id": getattr(g, "request_id", "")},
+                 "request_id": getattr(g, "request_id", ""), "reused": False},
     }
     return dump_with_units(family.response_schema, envelope, units)
 
 
-def answer(family: Family) -> Response:
-    """Solve the request's problem and answer in the negotiated format."""
-    allowed = ("json", "csv", "png") if family.picture else ("json", "csv")
-    fmt = "text" if "select" in request.args else wanted_format(allowed)
-    payload = read_payload()
-    if fmt == "png" and family.picture_payload and isinstance(payload, dict):
+def _reuse_wanted() -> tuple[bool, bool]:
+    """(look up, keep) for this request: `Cache-Control: no-cache` (or `Pragma: no-cache`)
+    asks for a fresh solve, `no-store` also for nothing to be kept."""
+    directives = request.headers.get("Cache-Control", "").lower()
+    no_store = "no-store" in directives
+    no_cache = no_store or "no-cache" in directives or (
+        "no-cache" in request.headers.get("Pragma", "").lower())
+    return not no_cache, not no_store
+
+
+def solved_body(family: Family, picture: bool) -> tuple[bytes, dict[str, Any]]:
+    """The dumped answer to this request's problem without `meta`, as JSON bytes (an object),
+    and this request's `meta`: kept from an identical earlier problem when there is one
+    (service/api/answers.py), else solved now and kept."""
+    started = time.perf_counter()
+    text, what = problem_text()
+    cache: AnswerCache = current_app.extensions["conduction"]["answers"]
+    key = AnswerKey(family.kind, picture, text)
+    look_up, keep = _reuse_wanted() if cache.enabled else (False, False)
+    kept = cache.get(key) if look_up else None
+    if kept is not None:
+        g.answer_reused = True
+        observe_answer(family.kind, reused=True)
+        return kept, {"service_version": __version__,
+                      "elapsed_ms": round_significant((time.perf_counter() - started) * 1e3),
+                      "request_id": getattr(g, "request_id", ""), "reused": True}
+    payload = _parse(text, what)
+    if picture and isinstance(payload, dict):
+        assert family.picture_payload is not None
         payload = family.picture_payload(payload)
     body = run_solve(family, payload)
+    meta = body.pop("meta")
+    encoded = dumps_bytes(body)
+    if keep and cache.put(key, encoded):
+        observe_answer_bytes(cache.nbytes())
+    if cache.enabled:
+        observe_answer(family.kind, reused=False)
+    return encoded, meta
+
+
+def answer(family: Family) -> Response:
+    """Solve the request's problem (or reuse the answer to an identical one) and answer in the
+    negotiated format."""
+    allowed = ("json", "csv", "png") if family.picture else ("json", "csv")
+    fmt = "text" if "select" in request.args else wanted_format(allowed)
+    encoded, meta = solved_body(family, fmt == "png" and family.picture_payload is not None)
+    if fmt == "json":
+        # the kept bytes end with the object's closing brace: `meta` goes last, as in the
+        # response schema
+        return Response(b"".join((encoded[:-1], b',"meta":', dumps_bytes(meta), b"}")),
+                        mimetype="application/json")
+    body = loads(encoded)
+    body["meta"] = meta
     if fmt == "text":
         return Response(selected_text(body), mimetype="text/plain")
     if fmt == "csv":
@@ -199,10 +263,8 @@ def answer(family: Family) -> Response:
         rows = flatten(family.response_schema, body, units)
         text = write_csv(["quantity", "value", "unit"], rows, csv_separator())
         return Response(text, mimetype="text/csv")
-    if fmt == "png":
-        assert family.picture is not None
-        return Response(family.picture(body), mimetype="image/png")
-    return current_app.json.response(body)  # type: ignore[return-value]
+    assert family.picture is not None
+    return Response(family.picture(body), mimetype="image/png")
 
 
 def solve_endpoint(kind: str, path: str, request_schema: type[Schema],

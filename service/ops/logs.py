@@ -172,6 +172,8 @@ def install(app: Flask) -> None:
             family = g.get("family")
             if family:
                 fields["family"] = family
+            if g.get("answer_reused"):
+                fields["reused"] = True
             client = g.get("api_client")
             if client:
                 fields["client"] = client

@@ -38,6 +38,11 @@ Metrics (all prefixed `conduction_`):
   are not counted.
 - `plate_model_bytes`: bytes held by the kept plate models, summed over live workers (each
   worker's value is set after each of its plate solves).
+- `answers_total{family, result}`: solve answers `reused` (an identical problem answered
+  earlier by the same worker, service/api/answers.py) or `computed`, counted only while answer
+  reuse is on (CONDUCTION_ANSWER_CACHE_BYTES > 0). Batch and sweep items are always computed
+  and not counted here.
+- `answer_cache_bytes`: bytes held by the kept answers, summed over live workers.
 - `build_info{version}`: always 1.
 
 The metric objects are module-level because a Prometheus registry is process-wide by design:
@@ -120,6 +125,13 @@ PLATE_MODELS = Counter(
 PLATE_MODEL_BYTES = Gauge(
     "conduction_plate_model_bytes", "Bytes held by the kept plate series models.",
     multiprocess_mode="livesum")
+ANSWERS = Counter(
+    "conduction_answers_total",
+    "Solve answers by whether they were reused (an identical problem answered earlier by this "
+    "worker) or computed.", ("family", "result"))
+ANSWER_CACHE_BYTES = Gauge(
+    "conduction_answer_cache_bytes", "Bytes held by the kept answers.",
+    multiprocess_mode="livesum")
 BUILD_INFO = Gauge(
     "conduction_build_info", "Service version (value always 1).", ("version",),
     multiprocess_mode="max")
@@ -157,6 +169,15 @@ def observe_plate_models(kept: int, built: int, nbytes: int) -> None:
     if built > 0:
         _PLATE_MODELS_BUILT.inc(built)
     PLATE_MODEL_BYTES.set(nbytes)
+
+
+def observe_answer(kind: str, reused: bool) -> None:
+    """Record one solve answer, reused or computed (only while answer reuse is on)."""
+    ANSWERS.labels(kind, "reused" if reused else "computed").inc()
+
+
+def observe_answer_bytes(nbytes: int) -> None:
+    ANSWER_CACHE_BYTES.set(nbytes)
 
 
 def connection_drop_counters() -> dict[str, Any]:
