@@ -30,7 +30,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable, Mapping
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, field
 from functools import lru_cache
 from types import MappingProxyType
 from typing import NamedTuple
@@ -2589,6 +2589,14 @@ def _refined_candidates(model: PlateSeries, sets: list[_Samples],
     return _Candidates(found, nbody, [s.sign for s in seeds[:nbody]], exposed, data)
 
 
+def _body_range(cands: _Candidates) -> tuple[float, float]:
+    """(coldest, hottest) of the refined body candidates, degC (-inf, inf where the candidates
+    hold none of that sign, so that any reported value takes the full choice)."""
+    hot = [f.temperature for f, s in zip(cands.found, cands.signs, strict=False) if s > 0]
+    cold = [f.temperature for f, s in zip(cands.found, cands.signs, strict=False) if s < 0]
+    return (min(cold) if cold else math.inf), (max(hot) if hot else -math.inf)
+
+
 def _pick_extremes(model: PlateSeries, cands: _Candidates,
                    reported: list[tuple[_Array, _Array, _Array]]) -> _Extremes:
     """Hottest and coldest over the plate, and per convection edge in `cands.exposed`.
@@ -2643,7 +2651,13 @@ def definition_of(problem: PlateProblem) -> PlateProblem:
     """The part of a problem that fixes its solution: without the output points, grid and
     limits (the limits' values; whether convection edges get their own scope is asked of
     `PlateCore.candidates`)."""
-    return replace(problem, points=(), grid=None, limits=Limits())
+    # built directly: dataclasses.replace walks the fields by name, several times slower
+    p = problem
+    return PlateProblem(p.width, p.height, p.conductivity, p.bottom, p.right, p.top, p.left,
+                        p.generation, (), None, p.atol, p.max_terms, _NO_LIMITS)
+
+
+_NO_LIMITS = Limits()
 
 
 def _nbytes(obj: object) -> int:
@@ -2677,6 +2691,7 @@ class PlateCore:
         self.flows = self.model.edge_heat_flows()
         self._samples: list[_Samples] | None = None
         self._candidates: dict[bool, _Candidates] = {}
+        self._extremes: dict[bool, tuple[_Extremes, tuple[float, float]]] = {}
         self._grid_candidates: dict[tuple[int, int, bool], _Candidates] = {}
         self._measured: tuple[tuple[int | bool, ...], int] = ((), 0)
 
@@ -2753,6 +2768,35 @@ class PlateCore:
             self._candidates[surfaces] = _refined_candidates(self.model, self.samples(), surfaces)
         return self._candidates[surfaces]
 
+    def extremes(self, surfaces: bool, x: _Array, y: _Array, temp: _Array) -> _Extremes:
+        """`_pick_extremes` of `candidates` with the reported points (x, y, temp), m and degC.
+
+        The extremes of the candidates alone are kept: points no hotter than the hottest body
+        candidate and no colder than the coldest (the usual case) cannot change the choice,
+        since a reported value enters after the body candidates and wins only when strictly
+        more extreme (`max` keeps the first of equal values); NaN fails the test and takes
+        the full choice."""
+        cands = self.candidates(surfaces)
+        kept = self._extremes.get(surfaces)
+        if kept is None:
+            kept = (_pick_extremes(self.model, cands, []), _body_range(cands))
+            self._extremes[surfaces] = kept
+        ext, (cold, hot) = kept
+        if temp.size and not (float(temp.max()) <= hot and float(temp.min()) >= cold):
+            return _pick_extremes(self.model, cands, [(x, y, temp)])
+        return ext
+
+
+class _Kept:
+    """A kept core and the bytes it held when last measured (updated in place by
+    `CoreCache.settle`, so that no second lookup of the definition is needed)."""
+
+    __slots__ = ("core", "size")
+
+    def __init__(self, core: PlateCore, size: int) -> None:
+        self.core = core
+        self.size = size
+
 
 class CoreCache:
     """Least recently used `PlateCore`s by definition: at most `entries` of them holding at
@@ -2765,35 +2809,44 @@ class CoreCache:
         # a plain dict keeps insertion order (least recently used first) and, unlike
         # OrderedDict, iterates its values without hashing every key again (a definition's
         # hash walks all its fields)
-        self._cores: dict[PlateProblem, tuple[PlateCore, int]] = {}
+        self._cores: dict[PlateProblem, _Kept] = {}
         self._bytes = 0
+        # the definition last returned by `get` and its entry: `settle` of the same object
+        # then needs no lookup
+        self._last: tuple[PlateProblem, _Kept] | None = None
         self.hits = 0
         self.misses = 0
 
     def get(self, definition: PlateProblem) -> PlateCore:
         """The core of `definition`, built (and possibly raising) when not kept."""
+        self._last = None
         kept = self._cores.pop(definition, None)
         if kept is not None:
             self._cores[definition] = kept  # now the most recently used
             self.hits += 1
-            return kept[0]
-        self.misses += 1
-        core = PlateCore(definition)
-        self._cores[definition] = (core, 0)
-        return core
+        else:
+            self.misses += 1
+            kept = _Kept(PlateCore(definition), 0)
+            self._cores[definition] = kept
+        self._last = (definition, kept)
+        return kept.core
 
     def settle(self, definition: PlateProblem) -> None:
         """Measure `definition`'s core after a use, then drop the least recently used cores
         until both bounds hold (the core itself too, when it alone is over `max_bytes`)."""
-        kept = self._cores.get(definition)
+        last, self._last = self._last, None
+        # the entry returned by `get` is still kept: only `settle` and `clear` drop entries,
+        # and both forget it
+        kept = last[1] if last is not None and last[0] is definition else \
+            self._cores.get(definition)
         if kept is not None:
-            self._cores[definition] = (kept[0], kept[0].nbytes())
+            kept.size = kept.core.nbytes()
         # summed afresh (at most `entries` values), so a use interrupted by the time budget
         # cannot leave the total wrong
-        self._bytes = sum(size for _, size in self._cores.values())
+        self._bytes = sum(k.size for k in self._cores.values())
         while self._cores and (len(self._cores) > self.entries or self._bytes > self.max_bytes):
             oldest = next(iter(self._cores))
-            self._bytes -= self._cores.pop(oldest)[1]
+            self._bytes -= self._cores.pop(oldest).size
 
     def nbytes(self) -> int:
         return self._bytes
@@ -2804,6 +2857,7 @@ class CoreCache:
     def clear(self) -> None:
         self._cores.clear()
         self._bytes = 0
+        self._last = None
         self.hits = self.misses = 0
 
 
@@ -2901,8 +2955,9 @@ def _solve_with(problem: PlateProblem, core: PlateCore) -> PlateResult:
     w, h = p.width, p.height
     warnings: list[str] = []
 
-    pts = np.asarray(p.points, dtype=float).reshape(-1, 2)
-    pts = np.array((np.clip(pts[:, 0], 0.0, w), np.clip(pts[:, 1], 0.0, h))).T.reshape(-1, 2)
+    # clipped into the plate (validated to within rounding of it); minimum/maximum: np.clip's
+    # wrapper costs more than the points
+    pts = np.minimum(np.maximum(np.asarray(p.points, dtype=float).reshape(-1, 2), 0.0), (w, h))
     npts = pts.shape[0]
     point_t, point_err = np.zeros(0), np.zeros(0)
     most = 0
@@ -2914,7 +2969,7 @@ def _solve_with(problem: PlateProblem, core: PlateCore) -> PlateResult:
     surfaces = p.limits.max_surface_temperature is not None
     gx = gy = grid_t = None
     if p.grid is None:
-        cands = core.candidates(surfaces)
+        ext = core.extremes(surfaces, pts[:, 0], pts[:, 1], point_t)
     else:
         gx = np.linspace(0.0, w, int(p.grid[0]))
         gy = np.linspace(0.0, h, int(p.grid[1]))
@@ -2924,8 +2979,7 @@ def _solve_with(problem: PlateProblem, core: PlateCore) -> PlateResult:
         most = max(most, grid.most)
         xx, yy = np.meshgrid(gx, gy)
         reported.append((xx.ravel(), yy.ravel(), grid_t.ravel()))
-        cands = core.grid_candidates(gx, gy, grid_t, surfaces)
-    ext = _pick_extremes(model, cands, reported)
+        ext = _pick_extremes(model, core.grid_candidates(gx, gy, grid_t, surfaces), reported)
     errors.append(ext.error)
     most = max(most, ext.most)
     error_estimate = max(errors)
