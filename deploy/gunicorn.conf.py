@@ -88,7 +88,12 @@ timeout = int(os.environ.get("CONDUCTION_WORKER_TIMEOUT", "60"))
 # the listener closes and workers get this long to finish the request they are serving.
 graceful_timeout = int(os.environ.get("CONDUCTION_GRACEFUL_TIMEOUT", "30"))
 drain_seconds = float(os.environ.get("CONDUCTION_DRAIN_SECONDS", "0"))
-keepalive = 2
+# Keep-alive (service/ops/worker.py): a connection whose request and response allow it waits
+# this long for its next request, at most CONDUCTION_KEEPALIVE_REQUESTS (100) requests, then
+# closes so that connections keep spreading over the workers. Behind a proxy that keeps
+# upstream connections open, set this above the proxy's idle timeout; 0 closes every
+# connection after its response, as plain sync workers do.
+keepalive = int(os.environ.get("CONDUCTION_KEEPALIVE_SECONDS", "5"))
 # Spreadsheet GET requests carry the whole problem in the query string.
 limit_request_line = int(os.environ.get("CONDUCTION_LIMIT_REQUEST_LINE", "16384"))
 limit_request_field_size = 16384
