@@ -232,10 +232,13 @@ def test_settings_defaults_and_environment():
     base = WorkerSettings.from_environ({}, max_body_bytes=2_000_000, head_limit=limit)
     assert (base.read_seconds, base.pending_connections) == (10.0, 200)
     assert base.pending_bytes == 32 * 1024 * 1024
+    assert base.keepalive_requests == 100
     custom = WorkerSettings.from_environ(
         {"CONDUCTION_REQUEST_READ_SECONDS": "2.5", "CONDUCTION_PENDING_CONNECTIONS": "7",
-         "CONDUCTION_PENDING_BYTES": "10"}, max_body_bytes=1000, head_limit=500)
+         "CONDUCTION_PENDING_BYTES": "10", "CONDUCTION_KEEPALIVE_REQUESTS": "1"},
+        max_body_bytes=1000, head_limit=500)
     assert (custom.read_seconds, custom.pending_connections) == (2.5, 7)
+    assert custom.keepalive_requests == 1
     assert custom.pending_bytes == 1500  # raised so that one largest request fits
 
 
@@ -244,6 +247,7 @@ def test_settings_defaults_and_environment():
     ("CONDUCTION_PENDING_CONNECTIONS", "0", "must be positive and finite"),
     ("CONDUCTION_REQUEST_READ_SECONDS", "inf", "must be positive and finite"),
     ("CONDUCTION_PENDING_BYTES", "1.5", "is not a valid int"),
+    ("CONDUCTION_KEEPALIVE_REQUESTS", "0", "must be positive and finite"),
 ])
 def test_bad_settings_name_the_variable(name, raw, message):
     with pytest.raises(ValueError, match=f"^{name}='{raw}' {message}"):
