@@ -9,7 +9,9 @@ a dump.
 
 What is kept, per app (so per worker): the dumped response body without `meta`, as JSON bytes,
 keyed by the solve family, the exact problem text (the POST body bytes, or the GET `problem`
-parameter) and whether a picture's output grid was added (`?format=png`). Formats (JSON, CSV,
+parameter), whether a picture's output grid was added (`?format=png`) and, when API keys are
+on, the key's label: `meta.reused` (and the time an answer takes) would otherwise tell one
+caller that another asked the very same problem recently. Formats (JSON, CSV,
 PNG, a selected value) are produced from the kept body at every request, and `meta` is fresh:
 this request's ID, its own `elapsed_ms`, and `reused: true`. Text that differs in any byte
 (spacing, key order, a number written differently) is a different key: such problems are
@@ -39,6 +41,7 @@ class AnswerKey(NamedTuple):
     kind: str       # solve family
     picture: bool   # the problem was given a picture's output grid (?format=png)
     text: bytes     # the problem text exactly as sent
+    client: str = ""  # the API key's label when keys are on: callers never share answers
 
 
 class AnswerCache:
@@ -62,7 +65,7 @@ class AnswerCache:
 
     @staticmethod
     def size_of(key: AnswerKey, body: bytes) -> int:
-        return len(key.text) + len(body) + ENTRY_OVERHEAD
+        return len(key.text) + len(key.client) + len(body) + ENTRY_OVERHEAD
 
     def nbytes(self) -> int:
         return self._bytes

@@ -220,7 +220,7 @@ def solved_body(family: Family, picture: bool) -> tuple[bytes, dict[str, Any]]:
     started = time.perf_counter()
     text, what = problem_text()
     cache: AnswerCache = current_app.extensions["conduction"]["answers"]
-    key = AnswerKey(family.kind, picture, text)
+    key = AnswerKey(family.kind, picture, text, g.get("api_client") or "")
     look_up, keep = _reuse_wanted() if cache.enabled else (False, False)
     kept = cache.get(key) if look_up else None
     if kept is not None:

@@ -10,6 +10,7 @@ from prometheus_client.parser import text_string_to_metric_families
 
 from service.api.answers import ENTRY_OVERHEAD, AnswerCache, AnswerKey
 from service.app import create_app
+from service.ops.keys import hash_key
 
 
 @pytest.fixture
@@ -194,3 +195,20 @@ def test_reused_and_computed_answers_are_counted(fresh, plate_payload):
     for _ in range(3):
         _post(client, text)
     assert (count("reused") - before[0], count("computed") - before[1]) == (2, 1)
+
+
+def test_callers_with_different_api_keys_never_share_an_answer(plate_payload):
+    keys = {"sheet": "first-" + "a" * 20, "plm": "second-" + "b" * 20}
+    app = create_app({"TESTING": True, "API_KEY_HASHES": ",".join(
+        f"{label}:{hash_key(key)}" for label, key in keys.items())})
+    client = app.test_client()
+    text = json.dumps(plate_payload)
+
+    def reused(key: str) -> bool:
+        response = _post(client, text, **{"X-API-Key": key})
+        assert response.status_code == 200
+        return response.get_json()["meta"]["reused"]
+
+    # the second caller cannot learn that the first asked this problem
+    assert [reused(keys["sheet"]), reused(keys["plm"]), reused(keys["sheet"]),
+            reused(keys["plm"])] == [False, False, True, True]
