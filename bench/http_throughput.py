@@ -1,4 +1,4 @@
-"""Requests per second through the real gunicorn server (2 sync workers, loopback).
+"""Requests per second through the real gunicorn server (2 workers, loopback).
 
 Uses wrk (Debian package `wrk`) when installed, else a bounded Python thread load. Targets
 (this 2-core machine, the load generator sharing the cores): a 5-point plate request at 2400
@@ -16,15 +16,22 @@ The series solver keeps the model of the 32 most recently asked plate definition
   (service/api/answers.py), so after its first solve a worker answers these from the kept
   answer (`meta.reused`);
 - "same request, no-cache": byte-identical requests sent with `Cache-Control: no-cache`, so each
-  is validated, solved (with the kept model) and dumped afresh.
+  is validated, solved (with the kept model) and dumped afresh;
+- "new connections": `Connection: close`, so every request opens and closes a TCP connection
+  (as gunicorn's plain sync worker forces); the other cases keep wrk's 16 connections alive
+  (the worker's keep-alive, README "Keep-alive").
 
-    .venv/bin/python bench/http_throughput.py [--seconds 10]
+Each case runs `--rounds` times, the rounds interleaving the cases so that machine noise hits
+all of them alike; the table gives the median, the range and the p99 latency of the median run.
+
+    .venv/bin/python bench/http_throughput.py [--seconds 5] [--rounds 3]
 """
 
 from __future__ import annotations
 
 import argparse
 import json
+import os
 import pathlib
 import random
 import re
@@ -62,6 +69,8 @@ class Case:
     new_points: bool = False
     new_plate: bool = False
     no_cache: bool = False  # send Cache-Control: no-cache (solve afresh, no answer reuse)
+    close: bool = False     # send Connection: close (a new connection for every request)
+    target: int | None = None  # req/s asked by issue 2 for this request
 
 
 def _template(extra: dict, points: bool, conductivity: bool) -> str:
@@ -79,16 +88,19 @@ CASES = [
     Case("plate, 5 points, new plate each time", "/v1/plate",
          _template({"points": FIVE}, points=False, conductivity=True), new_plate=True),
     Case("plate, 5 points, same request", "/v1/plate",
-         _template({"points": FIVE}, points=False, conductivity=False)),
+         _template({"points": FIVE}, points=False, conductivity=False), target=2400),
+    Case("plate, 5 points, same request, new connections", "/v1/plate",
+         _template({"points": FIVE}, points=False, conductivity=False), close=True),
     Case("plate, 5 points, same request, no-cache", "/v1/plate",
          _template({"points": FIVE}, points=False, conductivity=False), no_cache=True),
     Case("plate, 101x101 grid, same request", "/v1/plate",
-         _template({"grid": GRID}, points=False, conductivity=False)),
+         _template({"grid": GRID}, points=False, conductivity=False), target=800),
     Case("plate, 101x101 grid, same request, no-cache", "/v1/plate",
          _template({"grid": GRID}, points=False, conductivity=False), no_cache=True),
     Case("plate, 101x101 grid, new plate each time", "/v1/plate",
          _template({"grid": GRID}, points=False, conductivity=True), new_plate=True),
     Case("trivial GET /healthz", "/healthz", None),
+    Case("trivial GET /healthz, new connections", "/healthz", None, close=True),
 ]
 
 
@@ -123,6 +135,7 @@ local template = %s
 local path = %s
 local headers = {["Content-Type"] = "application/json"}
 if %s then headers["Cache-Control"] = "no-cache" end
+if %s then headers["Connection"] = "close" end
 local function points()
   local out = {}
   for i = 1, 5 do
@@ -131,6 +144,7 @@ local function points()
   return "[" .. table.concat(out, ",") .. "]"
 end
 request = function()
+  if template == nil then return wrk.format("GET", path, headers) end
   local body = template
   if %s then body = body:gsub("@POINTS@", points(), 1) end
   if %s then body = body:gsub("@K@", string.format("%%.9f", 20 + 60 * math.random()), 1) end
@@ -141,10 +155,10 @@ end
 
 def with_wrk(base: str, case: Case, seconds: int, connections: int = 16) -> dict:
     with tempfile.NamedTemporaryFile("w", suffix=".lua", delete=False) as script:
-        if case.body is not None:
-            script.write(_LUA % (json.dumps(case.body), json.dumps(case.path),
-                                 str(case.no_cache).lower(), WIDTH, HEIGHT,
-                                 str(case.new_points).lower(), str(case.new_plate).lower()))
+        template = "nil" if case.body is None else json.dumps(case.body)
+        script.write(_LUA % (template, json.dumps(case.path),
+                             str(case.no_cache).lower(), str(case.close).lower(), WIDTH, HEIGHT,
+                             str(case.new_points).lower(), str(case.new_plate).lower()))
     out = subprocess.run(["wrk", "-t2", f"-c{connections}", f"-d{seconds}s", "--latency",
                           "-s", script.name, base + case.path],
                          capture_output=True, text=True, check=True)
@@ -169,11 +183,14 @@ def with_threads(base: str, case: Case, seconds: int, clients: int = 8) -> dict:
         headers = {"Content-Type": "application/json"}
         if case.no_cache:
             headers["Cache-Control"] = "no-cache"
+        if case.close:
+            headers["Connection"] = "close"
         while time.monotonic() < stop_at:
             body = fill(case, rng)
             t0 = time.perf_counter()
             r = (session.post(base + case.path, data=body, headers=headers, timeout=30)
-                 if body is not None else session.get(base + case.path, timeout=30))
+                 if body is not None else session.get(base + case.path, headers=headers,
+                                                    timeout=30))
             with lock:
                 latencies.append(time.perf_counter() - t0)
                 errors += r.status_code != 200
@@ -201,20 +218,35 @@ def check_bodies(base: str) -> None:
 
 def main() -> None:
     parser = argparse.ArgumentParser()
-    parser.add_argument("--seconds", type=int, default=10)
+    parser.add_argument("--seconds", type=int, default=5, help="per case and round")
+    parser.add_argument("--rounds", type=int, default=3,
+                        help="rounds over all cases (a noisy machine: medians and ranges)")
     args = parser.parse_args()
     load = with_wrk if shutil.which("wrk") else with_threads
     proc, base = _server.start(workers=2)
     try:
         check_bodies(base)
         print(f"load generator: {'wrk' if load is with_wrk else 'python threads'}, "
-              f"{args.seconds} s per case, 16 connections, 2 sync workers")
-        print(f"{'case':<46} {'req/s':>9} {'p50':>10} {'p99':>10} {'errors':>7}")
+              f"{args.seconds} s per case in each of {args.rounds} rounds, 16 connections "
+              f"(kept alive unless the case says new connections), 2 workers; "
+              f"load average before: {os.getloadavg()[0]:.2f}")
+        results: dict[str, list[dict]] = {case.name: [] for case in CASES}
         for case in CASES:
             load(base, case, 2)  # warm-up
-            r = load(base, case, args.seconds)
-            print(f"{case.name:<46} {r['rps']:>9.0f} {r['p50']:>10} {r['p99']:>10} "
-                  f"{r['errors']:>7}", flush=True)
+        for _ in range(args.rounds):  # rounds interleave the cases: noise hits all alike
+            for case in CASES:
+                results[case.name].append(load(base, case, args.seconds))
+        print(f"{'case':<48} {'req/s':>7} {'range':>11} {'p99':>9} {'errors':>6} "
+              f"{'target':>7}")
+        for case in CASES:
+            runs = results[case.name]
+            rates = sorted(r["rps"] for r in runs)
+            mid = runs[[r["rps"] for r in runs].index(statistics.median_low(rates))]
+            target = f"{case.target}" if case.target else ""
+            print(f"{case.name:<48} {statistics.median(rates):>7.0f} "
+                  f"{f'{rates[0]:.0f}-{rates[-1]:.0f}':>11} {mid['p99']:>9} "
+                  f"{sum(r['errors'] for r in runs):>6} {target:>7}", flush=True)
+        print(f"load average after: {os.getloadavg()[0]:.2f}")
     finally:
         _server.stop(proc)
 
