@@ -5,7 +5,19 @@ from typing import Any
 
 import pytest
 
+from schemas.dumping import reference_checks, set_reference_check
 from service.app import create_app
+
+# Every response dumped in this process by the compiled dumper (schemas/dumping.py) is also dumped
+# by marshmallow and compared exactly; a difference fails the test that produced it. The
+# integration tests' gunicorn runs without it.
+set_reference_check(True)
+
+
+def pytest_terminal_summary(terminalreporter: Any) -> None:
+    enabled, count = reference_checks()
+    terminalreporter.write_line(f"compiled dumps checked against marshmallow: {count}"
+                                + ("" if enabled else " (check off)"))
 
 PLATE_PAYLOAD: dict[str, Any] = {
     # a cast-iron inspection cover: hot bottom, cooled right side (demo scenario, invented)
