@@ -261,7 +261,7 @@ def _object_dumper(schema: Schema, depth: int) -> Convert:
     for n, (attr_name, field) in enumerate(schema.dump_fields.items()):
         key = field.data_key if field.data_key is not None else attr_name
         convert = _field_converter(field, depth) if _plain_field(field) else None
-        lines.append(f"    # {attr_name}")
+        lines.append(f"    # {attr_name!r}")
         if convert is None:  # marshmallow's own path for this field
             space[f"_field{n}"] = field
             lines += [f"    v = _field{n}.serialize({attr_name!r}, obj, accessor=_accessor)",
@@ -288,14 +288,12 @@ def _read_lines(attribute: str) -> list[str]:
     """`v = get_value(obj, attribute, missing)`, inlined (marshmallow's `_get_value_for_key`)."""
     if "." in attribute:
         return [f"    v = _dotted(obj, {attribute!r}, missing)"]
-    return ["    if plain:",
-            f"        v = obj.get({attribute!r}, _MISS)",
-            "        if v is _MISS:",
-            f"            v = getattr(obj, {attribute!r}, missing)",
-            "    elif keyed:",
-            f"        v = _keyed(obj, {attribute!r})",
-            "    else:",
-            f"        v = getattr(obj, {attribute!r}, missing)"]
+    # a dict: obj[key], else the attribute (only a dict's .get can give _MISS); an object with
+    # __getitem__: the same through try/except; any other object: the attribute
+    name = repr(attribute)
+    return [f"    v = obj.get({name}, _MISS) if plain else _keyed(obj, {name}) if keyed else "
+            f"getattr(obj, {name}, missing)",
+            f"    if v is _MISS: v = getattr(obj, {name}, missing)"]
 
 
 def _store_lines(kind: str, n: int, key: str, quantity: str | None) -> list[str]:
