@@ -10,6 +10,9 @@ from __future__ import annotations
 import copy
 import datetime
 import math
+import pathlib
+import subprocess
+import sys
 import types
 from typing import Any
 
@@ -19,6 +22,7 @@ from marshmallow import Schema, fields, post_dump, pre_dump
 
 import service.api.common as common
 from schemas import dumping
+from schemas.common import ConvergenceSchema
 from schemas.dumping import DumpMismatchError, compiled_dumper, dump_difference
 from schemas.fields import Array, Integer, Number, Quantity, QuantityArray
 from schemas.units import CURRENT_OUTPUT_UNITS, OutputUnits
@@ -109,8 +113,6 @@ def test_solve_responses_identical(captured, case, units):
     path, payload = CASES[case]
     payload = copy.deepcopy(payload)
     if units is not None:
-        family_kinds = {"plate", "layers", "fin", "transient", "grid"}
-        assert path.rsplit("/", 1)[1] in family_kinds
         payload["output_units"] = units
     dumps = captured(path, payload)
     assert dumps, "the request dumped nothing"
@@ -132,15 +134,19 @@ def test_imperial_output_is_converted(captured):
                                rtol=1e-9, atol=1e-9)
 
 
-def test_unconverged_diagnostics_identical(client, monkeypatch):
+@pytest.mark.parametrize("accept", [False, True])
+def test_unconverged_diagnostics_identical(client, monkeypatch, accept):
     seen: list[Any] = []
     real = common.dump_with_units
     monkeypatch.setattr(common, "dump_with_units",
                         lambda s, o, u: seen.append((s, o, u)) or real(s, o, u))
-    payload = copy.deepcopy(TRANSIENT_PAYLOAD)
-    payload.update(max_terms=1, times=[0.5, 1.0])
-    response = client.post("/v1/transient", json=payload)
-    assert response.status_code in (200, 422), response.get_json()
+    payload = copy.deepcopy(GRID_PAYLOAD)  # radiation with one Picard iteration cannot converge
+    payload["edges"]["top"] = {"type": "radiation", "emissivity": 0.9, "surroundings": -25}
+    payload.update(max_iterations=1, accept_unconverged=accept,
+                   output_units={"temperature": "degF"})
+    response = client.post("/v1/grid", json=payload)
+    assert response.status_code == (200 if accept else 422), response.get_json()
+    assert type(seen[0][0]) is ConvergenceSchema
     for schema, obj, units in seen:
         identical(schema, obj, units)
 
@@ -429,3 +435,12 @@ def test_reference_check_is_on_and_raises(monkeypatch):
     with pytest.raises(DumpMismatchError, match="PointSchema"):
         dumping.dump(PointSchema(), {"x": 2.0}, OutputUnits())
     assert dumping.reference_checks()[1] == count
+
+
+def test_reference_check_is_off_outside_the_tests():
+    # the server (and the integration tests' gunicorn) dumps once, without marshmallow
+    code = ("from service.app import create_app; from schemas.dumping import reference_checks; "
+            "create_app(); print(reference_checks())")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                         check=True, cwd=pathlib.Path(__file__).parents[2])
+    assert out.stdout.strip().splitlines()[-1] == "(False, 0)"
