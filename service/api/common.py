@@ -17,7 +17,6 @@ from flask import Response, current_app, g, request
 from marshmallow import Schema
 
 from schemas.common import ConvergenceSchema, SolveRequest, quantity_kinds
-from schemas.dumping import dump as compiled_dump
 from schemas.units import CURRENT_OUTPUT_UNITS, DEFAULT_OUTPUT_UNITS, OutputUnits
 from service import __version__
 from service.jsonio import loads
@@ -141,8 +140,10 @@ def units_object(schema_cls: type[Schema], output_units: OutputUnits) -> dict[st
 
 
 def dump_with_units(schema: Schema, obj: Any, output_units: OutputUnits) -> Any:
+    from schemas.dumping import dump  # here, to keep this change to this function
+
     CURRENT_OUTPUT_UNITS.set(output_units)
-    body = compiled_dump(schema, obj, output_units)  # schema.dump(obj), compiled
+    body = dump(schema, obj, output_units)  # what schema.dump(obj) gives, compiled
     CURRENT_OUTPUT_UNITS.set(DEFAULT_OUTPUT_UNITS)
     return body
 
