@@ -22,9 +22,11 @@ Identity with `schema.dump` is the contract:
 * Numbers take marshmallow's path value for value: a Python or numpy float64 (or an int) is
   converted with the same affine map and rounded with the same `f"{value:.10g}"` that
   `round_significant` uses for scalars; anything else (numpy arrays, lists, other numpy scalars)
-  goes through the very functions the fields call (`OutputUnits.convert`, `round_significant`).
-  Nothing is vectorised across separate scalars, since `round_significant`'s array path rounds
-  differently from its scalar path.
+  is converted by `OutputUnits.convert` and rounded by `round_significant`, except that float
+  arrays of up to 8 values have their rounding remembered (`_round_array`) and larger ones are
+  rounded by `_round_large` (round_significant's own operations, its powers of ten from a
+  table made and checked by the same numpy expression). Nothing is vectorised across separate
+  scalars, since `round_significant`'s array path rounds differently from its scalar path.
 
 With `set_reference_check(True)` (the test suite turns it on) every `dump` is also done by
 marshmallow and the two are compared exactly (`dump_difference`), raising `DumpMismatchError`.
