@@ -72,7 +72,9 @@ def capture(client: Any, path: str, payload: dict[str, Any]) -> tuple[Any, Any, 
 
     common.dump_with_units = keep  # type: ignore[assignment]
     try:
-        response = client.post(path, json=copy.deepcopy(payload))
+        # no-store: solved and dumped even where finished answers are kept for reuse
+        response = client.post(path, json=copy.deepcopy(payload),
+                               headers={"Cache-Control": "no-store"})
     finally:
         common.dump_with_units = real  # type: ignore[assignment]
     if response.status_code != 200:

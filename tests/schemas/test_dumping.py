@@ -86,6 +86,10 @@ CASES = {
 }
 
 
+#: Solve and dump anew even where the service keeps finished answers for identical problems.
+FRESH = {"Cache-Control": "no-store"}
+
+
 @pytest.fixture
 def captured(client, monkeypatch):
     """Run a request and return every (schema, object, units) it dumped."""
@@ -100,7 +104,7 @@ def captured(client, monkeypatch):
 
     def run(path: str, payload: dict[str, Any]) -> list[tuple[Schema, Any, OutputUnits]]:
         seen.clear()
-        response = client.post(path, json=payload)
+        response = client.post(path, json=payload, headers=FRESH)
         assert response.status_code == 200, response.get_json()
         return list(seen)
 
@@ -144,7 +148,7 @@ def test_unconverged_diagnostics_identical(client, monkeypatch, accept):
     payload["edges"]["top"] = {"type": "radiation", "emissivity": 0.9, "surroundings": -25}
     payload.update(max_iterations=1, accept_unconverged=accept,
                    output_units={"temperature": "degF"})
-    response = client.post("/v1/grid", json=payload)
+    response = client.post("/v1/grid", json=payload, headers=FRESH)
     assert response.status_code == (200 if accept else 422), response.get_json()
     assert type(seen[0][0]) is ConvergenceSchema
     for schema, obj, units in seen:
