@@ -5,7 +5,28 @@ from typing import Any
 
 import pytest
 
+from schemas.dumping import reference_checks, set_reference_check
 from service.app import create_app
+
+# Every response dumped in this process by the compiled dumper (schemas/dumping.py) is also dumped
+# by marshmallow and compared exactly; a difference fails the test that produced it, even where
+# the exception became a response (a batch item, a 500 problem). The integration tests' gunicorn
+# runs without it.
+set_reference_check(True)
+
+
+@pytest.fixture(autouse=True)
+def _compiled_dumps_match_marshmallow():
+    before = len(reference_checks()[2])
+    yield
+    found = reference_checks()[2][before:]
+    assert not found, "compiled dump differs from marshmallow's: " + "; ".join(found)
+
+
+def pytest_terminal_summary(terminalreporter: Any) -> None:
+    enabled, count, mismatches = reference_checks()
+    terminalreporter.write_line(f"compiled dumps identical to marshmallow's: {count}, differing: "
+                                f"{len(mismatches)}" + ("" if enabled else " (check off)"))
 
 PLATE_PAYLOAD: dict[str, Any] = {
     # a cast-iron inspection cover: hot bottom, cooled right side (demo scenario, invented)

@@ -159,8 +159,10 @@ def units_object(schema_cls: type[Schema], output_units: OutputUnits) -> dict[st
 
 
 def dump_with_units(schema: Schema, obj: Any, output_units: OutputUnits) -> Any:
+    from schemas.dumping import dump  # here, to keep this change to this function
+
     CURRENT_OUTPUT_UNITS.set(output_units)
-    body = schema.dump(obj)
+    body = dump(schema, obj, output_units)  # what schema.dump(obj) gives, compiled
     CURRENT_OUTPUT_UNITS.set(DEFAULT_OUTPUT_UNITS)
     return body
 
