@@ -17,6 +17,7 @@ from flask import Response, current_app, g, request
 from marshmallow import Schema
 
 from schemas.common import ConvergenceSchema, SolveRequest, quantity_kinds
+from schemas.dumping import dump
 from schemas.units import (
     CURRENT_OUTPUT_UNITS,
     DEFAULT_OUTPUT_UNITS,
@@ -159,8 +160,6 @@ def units_object(schema_cls: type[Schema], output_units: OutputUnits) -> dict[st
 
 
 def dump_with_units(schema: Schema, obj: Any, output_units: OutputUnits) -> Any:
-    from schemas.dumping import dump  # here, to keep this change to this function
-
     CURRENT_OUTPUT_UNITS.set(output_units)
     body = dump(schema, obj, output_units)  # what schema.dump(obj) gives, compiled
     CURRENT_OUTPUT_UNITS.set(DEFAULT_OUTPUT_UNITS)
