@@ -8,6 +8,7 @@ are generous correctness bounds (a starved connection waits for seconds), not sp
 from __future__ import annotations
 
 import http.client
+import signal
 import threading
 import time
 
@@ -134,3 +135,27 @@ def test_busy_keepalive_clients_do_not_starve_new_connections(kept_server):
             t.join(timeout=15)
     assert max(waits) < 1.0, waits
     assert sum(served) > 0
+
+
+def test_a_stop_closes_idle_connections_at_once():
+    """SIGTERM with kept-alive connections open: the idle ones are closed (they have not begun
+    a request), so the stop does not wait for their keep-alive time."""
+    proc, base = start_server({"CONDUCTION_KEEPALIVE_SECONDS": "60"}, workers=2)
+    port = int(base.rsplit(":", 1)[1])
+    idle = []
+    try:
+        for _ in range(4):
+            sock = connect(port)
+            sock.sendall(plate_request())
+            assert read_response(sock, 10.0).startswith(b"HTTP/1.1 200")
+            idle.append(sock)
+        started = time.monotonic()
+        proc.send_signal(signal.SIGTERM)
+        for sock in idle:
+            assert read_all(sock, 10.0) == b""  # closed without an answer
+        proc.wait(timeout=15)
+        assert time.monotonic() - started < 10.0  # not the 60 s keep-alive time
+    finally:
+        for sock in idle:
+            sock.close()
+        stop_server(proc)  # also closes its stderr pipe; no signal once it has exited
