@@ -98,11 +98,6 @@ def problem_text() -> tuple[bytes, str]:
     return text.encode(), "Query parameter 'problem'"
 
 
-def read_payload() -> Any:
-    """POST: the JSON body. GET: the `problem` query parameter (URL-encoded JSON)."""
-    return _parse(*problem_text())
-
-
 def _parse(data: bytes, what: str) -> Any:
     try:
         return loads(data)

@@ -830,11 +830,11 @@ class RequestBufferingWorker(SyncWorker):
         framed response, the worker not stopping); on False the connection has been closed
         as gunicorn closes it."""
         req = None
+        kept = False
         try:
             parser = http.get_parser(self.cfg, client, addr)
             req = next(parser)
-            if self._handle_request(listener, req, client, addr, may_keep):
-                return True
+            kept = self._handle_request(listener, req, client, addr, may_keep)
         except http.errors.NoMoreData as exc:
             self.log.debug("Ignored premature client disconnection. %s", exc)
         except StopIteration as exc:
@@ -846,8 +846,10 @@ class RequestBufferingWorker(SyncWorker):
                 self.log.debug("Ignoring socket error: %s", exc)
         except BaseException as exc:
             self.handle_error(req, client, addr, exc)
-        util.close_graceful(client)
-        return False
+        finally:
+            if not kept:
+                util.close_graceful(client)
+        return kept
 
     def _handle_request(self, listener: Any, req: Any, client: BufferedSocket, addr: Any,
                         may_keep: bool) -> bool:
