@@ -82,22 +82,21 @@ def _template(extra: dict, points: bool, conductivity: bool) -> str:
     return json.dumps(body).replace('"@POINTS@"', "@POINTS@").replace('"@K@"', "@K@")
 
 
+FIVE_SAME = _template({"points": FIVE}, points=False, conductivity=False)
+GRID_SAME = _template({"grid": GRID}, points=False, conductivity=False)
+PLATE_PATH = "/v1/plate"
+
 CASES = [
-    Case("plate, 5 points, same plate, new points", "/v1/plate",
+    Case("plate, 5 points, same plate, new points", PLATE_PATH,
          _template({}, points=True, conductivity=False), new_points=True),
-    Case("plate, 5 points, new plate each time", "/v1/plate",
+    Case("plate, 5 points, new plate each time", PLATE_PATH,
          _template({"points": FIVE}, points=False, conductivity=True), new_plate=True),
-    Case("plate, 5 points, same request", "/v1/plate",
-         _template({"points": FIVE}, points=False, conductivity=False), target=2400),
-    Case("plate, 5 points, same request, new connections", "/v1/plate",
-         _template({"points": FIVE}, points=False, conductivity=False), close=True),
-    Case("plate, 5 points, same request, no-cache", "/v1/plate",
-         _template({"points": FIVE}, points=False, conductivity=False), no_cache=True),
-    Case("plate, 101x101 grid, same request", "/v1/plate",
-         _template({"grid": GRID}, points=False, conductivity=False), target=800),
-    Case("plate, 101x101 grid, same request, no-cache", "/v1/plate",
-         _template({"grid": GRID}, points=False, conductivity=False), no_cache=True),
-    Case("plate, 101x101 grid, new plate each time", "/v1/plate",
+    Case("plate, 5 points, same request", PLATE_PATH, FIVE_SAME, target=2400),
+    Case("plate, 5 points, same request, new connections", PLATE_PATH, FIVE_SAME, close=True),
+    Case("plate, 5 points, same request, no-cache", PLATE_PATH, FIVE_SAME, no_cache=True),
+    Case("plate, 101x101 grid, same request", PLATE_PATH, GRID_SAME, target=800),
+    Case("plate, 101x101 grid, same request, no-cache", PLATE_PATH, GRID_SAME, no_cache=True),
+    Case("plate, 101x101 grid, new plate each time", PLATE_PATH,
          _template({"grid": GRID}, points=False, conductivity=True), new_plate=True),
     Case("trivial GET /healthz", "/healthz", None),
     Case("trivial GET /healthz, new connections", "/healthz", None, close=True),
