@@ -24,13 +24,21 @@ service/ops/deadline.py works; the same throughput; gunicorn's own parser, limit
    The request line is held to limit_request_line here too (414): gunicorn's own parser
    lowers any limit above 8190 bytes to 8190, which would refuse the 16 KiB spreadsheet GETs
    the service promises, so the parser is given no line limit (`ParserConfig`).
-4. After a response, gunicorn closes gracefully (half-close, then read until the client
-   closes, at most 2 s) so unread request bytes cannot turn the close into a reset that cuts
-   the response. That wait happens in the selector loop instead of in the worker's hands.
+4. Keep-alive: after the response to a request framed exactly (one `Content-Length` request
+   and nothing after it), an HTTP/1.1 connection that neither side asked to close goes back to
+   the loop as idle, for at most the `keepalive` setting's seconds and
+   CONDUCTION_KEEPALIVE_REQUESTS requests (then `Connection: close`, so connections keep
+   spreading over the workers); its next bytes make it an incomplete request again, with a
+   fresh read deadline. A worker with requests waiting still accepts one new connection per
+   turn, so kept-alive clients cannot leave newcomers in the listen backlog.
+   Otherwise gunicorn closes gracefully (half-close, then read until the client closes, at
+   most 2 s) so unread request bytes cannot turn the close into a reset that cuts the
+   response. That wait happens in the selector loop instead of in the worker's hands.
 5. Stopping (SIGTERM after the drain, or `max_requests`): no more accepts; connections that
-   have not sent a byte are closed; requests already arriving keep their read deadline and are
-   served if they complete (as the plain sync worker finishes the request it is reading), so a
-   stop waits at most REQUEST_READ_SECONDS for slow clients, then for the request being served.
+   have not sent a byte (idle kept-alive ones too) are closed; requests already arriving keep
+   their read deadline and are served if they complete (as the plain sync worker finishes the
+   request it is reading), so a stop waits at most REQUEST_READ_SECONDS for slow clients, then
+   for the request being served.
 
 Requests that the buffer cannot frame (a malformed head, conflicting lengths, an unknown
 transfer coding) are handed to gunicorn as they are, at once, so its parser answers them as it
@@ -39,8 +47,9 @@ worker never waits for a client while it holds a request.
 
 Settings, from the environment (checked in the master at start-up, see `WorkerSettings`):
 CONDUCTION_REQUEST_READ_SECONDS (10), CONDUCTION_PENDING_CONNECTIONS (200),
-CONDUCTION_PENDING_BYTES (33554432), and the body limit CONDUCTION_MAX_BODY_BYTES that the app
-also uses (service/config.py).
+CONDUCTION_PENDING_BYTES (33554432), CONDUCTION_KEEPALIVE_REQUESTS (100), and the body limit
+CONDUCTION_MAX_BODY_BYTES that the app also uses (service/config.py); gunicorn's own
+`keepalive` (CONDUCTION_KEEPALIVE_SECONDS in deploy/gunicorn.conf.py) is the idle time.
 
 Every connection dropped instead of served is counted in the Prometheus counter
 `conduction_connections_dropped_total{reason}` (service/ops/metrics.py: `expired`, `evicted`,
