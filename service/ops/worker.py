@@ -95,6 +95,8 @@ READ_CHUNK = 256 * 1024
 ACCEPTS_PER_TURN = 64
 #: Longest chunk-size line (with extensions) accepted while buffering a chunked body, bytes.
 CHUNK_LINE_LIMIT = 4096
+#: A first write of a response up to this size (its head) is held to go out with the body.
+HEAD_HOLD_BYTES = 8192
 #: gunicorn's interim answer to `Expect: 100-continue` (gunicorn.http.wsgi.create sends it too).
 CONTINUE = b"HTTP/1.1 100 Continue\r\n\r\n"
 #: Default of CONDUCTION_MAX_BODY_BYTES when the service's config cannot be read (tests).
@@ -383,6 +385,11 @@ class BufferedSocket:
     - After `shutdown()` (gunicorn's graceful close after the response), `recv()` reports end
       of stream at once and `close()` hands the socket to `on_linger`, which finishes the close
       (reading until the client closes) without holding the worker.
+    - The first `sendall()` of a response (gunicorn writes the head on its own, then the body)
+      is held back, up to `HEAD_HOLD_BYTES`, and leaves with the next write: head and body in
+      one system call and, usually, one TCP segment, which the client reads at once (measured
+      per response on these 2 cores: one write and one client wake-up fewer). Anything else
+      that writes, `flush()`, `shutdown()` and `close()` send what is held first.
     """
 
     def __init__(self, sock: socket.socket, data: bytes, *, continue_sent: bool = False,
@@ -393,6 +400,8 @@ class BufferedSocket:
         self._on_linger = on_linger
         self._closing = False
         self._closed = False
+        self._held = b""
+        self._wrote = False  # the response has begun (the head is not held any more)
 
     def recv(self, bufsize: int, flags: int = 0) -> bytes:
         piece = bytes(self._data[:bufsize])
@@ -410,9 +419,39 @@ class BufferedSocket:
             # already sent while the body was being buffered: do not send a second one
             self._continue_sent = False
             return len(data)
+        self.flush()
         return self._sock.send(data, flags)
 
+    def sendall(self, data: bytes, flags: int = 0) -> None:
+        if not self._wrote:
+            self._wrote = True
+            if len(data) <= HEAD_HOLD_BYTES:
+                self._held = bytes(data)
+                return
+        elif self._held:
+            held, self._held = self._held, b""
+            if len(data) <= HEAD_HOLD_BYTES * 8:
+                self._sock.sendall(held + data, flags)  # one write
+                return
+            self._sock.sendall(held, flags)  # a large body: not worth copying
+        self._sock.sendall(data, flags)
+
+    def sendfile(self, *args: Any, **kwargs: Any) -> int:
+        self.flush()
+        return self._sock.sendfile(*args, **kwargs)
+
+    def flush(self) -> None:
+        """Send what is held (a response head, or a small whole response)."""
+        if self._held:
+            held, self._held = self._held, b""
+            self._sock.sendall(held)
+
     def shutdown(self, how: int) -> None:
+        if how in (socket.SHUT_WR, socket.SHUT_RDWR):
+            try:
+                self.flush()
+            except OSError:
+                self._held = b""
         self._sock.shutdown(how)
         if how in (socket.SHUT_WR, socket.SHUT_RDWR):
             self._closing = True
@@ -423,6 +462,10 @@ class BufferedSocket:
             return
         self._closed = True
         self._data = memoryview(b"")
+        try:
+            self.flush()
+        except OSError:
+            self._held = b""
         if self._closing and self._on_linger is not None:
             self._on_linger(self._sock)
         else:
@@ -886,6 +929,7 @@ class RequestBufferingWorker(SyncWorker):
                     for item in respiter:
                         resp.write(item)
                 resp.close()
+                client.flush()
             finally:
                 if self.access_log:
                     self.log.access(resp, req, environ, datetime.now() - request_start)

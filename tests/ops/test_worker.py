@@ -15,6 +15,7 @@ import pytest
 
 from service.ops.worker import (
     CONTINUE,
+    HEAD_HOLD_BYTES,
     BufferedSocket,
     ParserConfig,
     RequestBuffer,
@@ -203,6 +204,65 @@ def test_the_100_continue_sent_while_buffering_is_not_sent_twice(pair):
     wrapped.sendall(b"HTTP/1.1 200 OK\r\n\r\n")
     wrapped.send(CONTINUE)  # a second one is the application's own: passed on
     assert client.recv(100) == b"HTTP/1.1 200 OK\r\n\r\n" + CONTINUE
+
+
+class _Recorder:
+    """A socket stand-in that records each write (one entry per system call)."""
+
+    def __init__(self) -> None:
+        self.writes: list[bytes] = []
+
+    def sendall(self, data: bytes, flags: int = 0) -> None:
+        self.writes.append(bytes(data))
+
+    def send(self, data: bytes, flags: int = 0) -> int:
+        self.writes.append(bytes(data))
+        return len(data)
+
+    def shutdown(self, how: int) -> None:
+        self.writes.append(b"<shutdown>")
+
+    def close(self) -> None:
+        self.writes.append(b"<close>")
+
+
+def test_a_response_head_leaves_with_its_body_in_one_write():
+    sock = _Recorder()
+    wrapped = BufferedSocket(sock, b"")  # type: ignore[arg-type]
+    wrapped.sendall(b"HTTP/1.1 200 OK\r\nContent-Length: 4\r\n\r\n")
+    assert sock.writes == []  # held
+    wrapped.sendall(b"body")
+    wrapped.sendall(b"more")
+    wrapped.flush()
+    assert sock.writes == [b"HTTP/1.1 200 OK\r\nContent-Length: 4\r\n\r\nbody", b"more"]
+
+
+def test_what_is_held_goes_out_before_any_other_write_or_the_close():
+    head = b"HTTP/1.1 204 No Content\r\n\r\n"
+    for finish, expected in (
+            (lambda w: w.send(b"x"), [head, b"x"]),
+            (lambda w: w.shutdown(socket.SHUT_WR), [head, b"<shutdown>"]),
+            (lambda w: w.close(), [head, b"<close>"]),
+            (lambda w: w.flush(), [head])):
+        sock = _Recorder()
+        wrapped = BufferedSocket(sock, b"")  # type: ignore[arg-type]
+        wrapped.sendall(head)
+        finish(wrapped)
+        assert sock.writes == expected
+
+
+def test_large_writes_are_not_held_or_copied():
+    sock = _Recorder()
+    wrapped = BufferedSocket(sock, b"")  # type: ignore[arg-type]
+    big = b"h" * (HEAD_HOLD_BYTES + 1)
+    wrapped.sendall(big)
+    assert sock.writes == [big]
+    sock = _Recorder()
+    wrapped = BufferedSocket(sock, b"")  # type: ignore[arg-type]
+    body = b"b" * (HEAD_HOLD_BYTES * 8 + 1)
+    wrapped.sendall(b"head")
+    wrapped.sendall(body)
+    assert sock.writes == [b"head", body]
 
 
 def test_after_the_half_close_the_socket_goes_to_the_linger_callback(pair):
