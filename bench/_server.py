@@ -23,7 +23,7 @@ def free_port() -> int:
 def start(workers: int = 2, extra_env: dict[str, str] | None = None):
     port = free_port()
     env = {**os.environ, "CONDUCTION_BIND": f"127.0.0.1:{port}",
-           "CONDUCTION_WORKERS": str(workers), "CONDUCTION_ACCESS_LOG": "/dev/null",
+           "CONDUCTION_WORKERS": str(workers), "CONDUCTION_ACCESS_LOG": "",
            "CONDUCTION_LOG_LEVEL": "WARNING", **(extra_env or {})}
     gunicorn = pathlib.Path(sys.executable).with_name("gunicorn")
     proc = subprocess.Popen([str(gunicorn), "-c", "deploy/gunicorn.conf.py"], cwd=ROOT, env=env,

@@ -21,10 +21,11 @@ The series solver keeps the model of the 32 most recently asked plate definition
   (as gunicorn's plain sync worker forces); the other cases keep wrk's 16 connections alive
   (the worker's keep-alive, README "Keep-alive").
 
-Each case runs `--rounds` times, the rounds interleaving the cases so that machine noise hits
-all of them alike; the table gives the median, the range and the p99 latency of the median run.
+Each case runs `--rounds` times, each run on a fresh server (so no case inherits another's
+kept models or answers), the rounds interleaving the cases so that machine noise hits all of
+them alike; the table gives the median, the range and the p99 latency of the median run.
 
-    .venv/bin/python bench/http_throughput.py [--seconds 5] [--rounds 3]
+    .venv/bin/python bench/http_throughput.py [--seconds 4] [--rounds 3]
 """
 
 from __future__ import annotations
@@ -223,9 +224,21 @@ def check_bodies(base: str) -> None:
             r.raise_for_status()
 
 
+def measure(case: Case, seconds: int, load) -> dict:
+    """One run of `case` on a server of its own: started, warmed up for 1 s with the case's own
+    requests, measured for `seconds`, stopped. Each case then starts from the same state (no
+    plate models or answers kept from other cases, no worker recycled part-way)."""
+    proc, base = _server.start(workers=2)
+    try:
+        load(base, case, 1)
+        return load(base, case, seconds)
+    finally:
+        _server.stop(proc)
+
+
 def main() -> None:
     parser = argparse.ArgumentParser()
-    parser.add_argument("--seconds", type=int, default=5, help="per case and round")
+    parser.add_argument("--seconds", type=int, default=4, help="per case and round")
     parser.add_argument("--rounds", type=int, default=3,
                         help="rounds over all cases (a noisy machine: medians and ranges)")
     args = parser.parse_args()
@@ -233,29 +246,26 @@ def main() -> None:
     proc, base = _server.start(workers=2)
     try:
         check_bodies(base)
-        print(f"load generator: {'wrk' if load is with_wrk else 'python threads'}, "
-              f"{args.seconds} s per case in each of {args.rounds} rounds, 16 connections "
-              f"(kept alive unless the case says new connections), 2 workers; "
-              f"load average before: {os.getloadavg()[0]:.2f}")
-        results: dict[str, list[dict]] = {case.name: [] for case in CASES}
-        for case in CASES:
-            load(base, case, 2)  # warm-up
-        for _ in range(args.rounds):  # rounds interleave the cases: noise hits all alike
-            for case in CASES:
-                results[case.name].append(load(base, case, args.seconds))
-        print(f"{'case':<48} {'req/s':>7} {'range':>11} {'p99':>9} {'errors':>6} "
-              f"{'target':>7}")
-        for case in CASES:
-            runs = results[case.name]
-            rates = sorted(r["rps"] for r in runs)
-            mid = runs[[r["rps"] for r in runs].index(statistics.median_low(rates))]
-            target = f"{case.target}" if case.target else ""
-            print(f"{case.name:<48} {statistics.median(rates):>7.0f} "
-                  f"{f'{rates[0]:.0f}-{rates[-1]:.0f}':>11} {mid['p99']:>9} "
-                  f"{sum(r['errors'] for r in runs):>6} {target:>7}", flush=True)
-        print(f"load average after: {os.getloadavg()[0]:.2f}")
     finally:
         _server.stop(proc)
+    print(f"load generator: {'wrk' if load is with_wrk else 'python threads'}, "
+          f"{args.seconds} s per case in each of {args.rounds} rounds, each run on a fresh "
+          f"server after 1 s of warm-up, 16 connections (kept alive unless the case says new "
+          f"connections), 2 workers; load average before: {os.getloadavg()[0]:.2f}")
+    results: dict[str, list[dict]] = {case.name: [] for case in CASES}
+    for _ in range(args.rounds):  # rounds interleave the cases: noise hits all alike
+        for case in CASES:
+            results[case.name].append(measure(case, args.seconds, load))
+    print(f"{'case':<48} {'req/s':>7} {'range':>11} {'p99':>9} {'errors':>6} {'target':>7}")
+    for case in CASES:
+        runs = results[case.name]
+        rates = sorted(r["rps"] for r in runs)
+        mid = runs[[r["rps"] for r in runs].index(statistics.median_low(rates))]
+        target = f"{case.target}" if case.target else ""
+        print(f"{case.name:<48} {statistics.median(rates):>7.0f} "
+              f"{f'{rates[0]:.0f}-{rates[-1]:.0f}':>11} {mid['p99']:>9} "
+              f"{sum(r['errors'] for r in runs):>6} {target:>7}", flush=True)
+    print(f"load average after: {os.getloadavg()[0]:.2f}")
 
 
 if __name__ == "__main__":
